@@ -1,0 +1,130 @@
+"""Observables: transition dipoles, oscillator strengths, polarisation, state character, and
+ground-state pi charges, bond orders and dipole moment.
+
+Under zero differential overlap the position operator is diagonal in the centre basis, so the
+dipole matrix element between orbitals p and q is  <p|r|q> = sum_mu C_mu,p C_mu,q R_mu .
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..units import BOHR_ANGSTROM, E_ANGSTROM_DEBYE, HARTREE_EV
+
+
+def transition_dipoles(mo_coeff: np.ndarray, n_occ: int, amplitudes: np.ndarray, coords: np.ndarray) -> np.ndarray:
+    """Singlet ground-to-excited transition dipoles (k, 3), e*A.
+
+    mu_0n = sqrt(2) sum_ia X^n_ia <i|r|a>  (spin-adapted CIS singlet; the sqrt(2) collects both spins).
+
+    Parameters
+    ----------
+    mo_coeff : (N, N); n_occ : int; amplitudes : (k, n_occ, n_vir); coords : (N, 3) A
+    """
+    co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
+    # <i|r|a> for each Cartesian component: (3, n_occ, n_vir)
+    dip = np.einsum("mi,mx,ma->xia", co, coords, cv)
+    return np.sqrt(2.0) * np.einsum("kia,xia->kx", amplitudes, dip)
+
+
+def oscillator_strengths(energies_ev: np.ndarray, tdm_eangstrom: np.ndarray) -> np.ndarray:
+    """Dipole-length oscillator strengths f = (2/3) dE |mu|^2 in atomic units (common practice)."""
+    mu_au = np.asarray(tdm_eangstrom) / BOHR_ANGSTROM
+    return (2.0 / 3.0) * (np.asarray(energies_ev) / HARTREE_EV) * np.sum(mu_au * mu_au, axis=-1)
+
+
+def polarization(tdm: np.ndarray, threshold: float = 1e-6) -> tuple[float | None, str]:
+    """Angle (deg, 0..180) of an in-plane transition dipole from the long (x) axis, and a label.
+
+    Labels: "long" (within 20 deg of x), "short" (within 20 deg of y), "mixed", "out-of-plane" (mostly z),
+    or "-" when the dipole is below ``threshold`` e*A (forbidden transition: direction undefined).
+    """
+    tdm = np.asarray(tdm, dtype=float)
+    norm = float(np.linalg.norm(tdm))
+    if norm < threshold:
+        return None, "-"
+    if abs(tdm[2]) > np.hypot(tdm[0], tdm[1]):
+        return None, "out-of-plane"
+    angle = float(np.degrees(np.arctan2(tdm[1], tdm[0]))) % 180.0
+    off_x = min(angle, 180.0 - angle)
+    if off_x <= 20.0:
+        return angle, "long"
+    if abs(angle - 90.0) <= 20.0:
+        return angle, "short"
+    return angle, "mixed"
+
+
+def orbital_label(p: int, n_occ: int) -> str:
+    """HOMO, HOMO-1, ..., LUMO, LUMO+1, ... for 0-based orbital index p."""
+    if p < n_occ:
+        k = n_occ - 1 - p
+        return "HOMO" if k == 0 else f"HOMO-{k}"
+    k = p - n_occ
+    return "LUMO" if k == 0 else f"LUMO+{k}"
+
+
+@dataclass(frozen=True)
+class Configuration:
+    """One singly excited configuration i -> a and its weight |X_ia|^2 in a state."""
+
+    occupied: int  # 0-based orbital index
+    virtual: int
+    weight: float
+    from_label: str
+    to_label: str
+
+    def __str__(self) -> str:
+        return f"{self.from_label}\u2192{self.to_label} {100 * self.weight:.0f}%"
+
+
+def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: float = 0.05,
+                            max_count: int = 4) -> list[tuple[Configuration, ...]]:
+    """For each root, the configurations with weight >= ``min_weight`` (at most ``max_count``),
+    largest first. amplitudes: (k, n_occ, n_vir)."""
+    out = []
+    for x in amplitudes:
+        w = (x * x).ravel()
+        order = np.argsort(-w, kind="stable")[:max_count]
+        confs = []
+        for idx in order:
+            if w[idx] < min_weight and confs:
+                break
+            i, a = divmod(int(idx), x.shape[1])
+            confs.append(Configuration(i, n_occ + a, float(w[idx]), orbital_label(i, n_occ),
+                                       orbital_label(n_occ + a, n_occ)))
+        out.append(tuple(confs))
+    return out
+
+
+@dataclass(frozen=True)
+class GroundState:
+    """Ground-state pi properties.
+
+    Attributes
+    ----------
+    populations : (N,) pi-electron population P_ii
+    charges : (N,) net pi charge Z_i - P_ii (elementary charges)
+    bond_orders : (M,) Coulson bond orders p_ij = sum_occ 2 C_ik C_jk = P_ij for the bonded pairs
+                  (same order as the model's bonds; benzene 2/3)
+    dipole_debye : (3,) pi dipole moment sum_i q_i R_i, debye
+    """
+
+    populations: np.ndarray
+    charges: np.ndarray
+    bond_orders: np.ndarray
+    dipole_debye: np.ndarray
+
+    @property
+    def dipole_magnitude(self) -> float:
+        return float(np.linalg.norm(self.dipole_debye))
+
+
+def ground_state(dens: np.ndarray, core_charges: np.ndarray, coords: np.ndarray, bonds: np.ndarray) -> GroundState:
+    """pi populations, charges, Coulson bond orders (Coulson 1939) and the pi dipole moment."""
+    pop = np.diag(dens).copy()
+    q = np.asarray(core_charges, dtype=float) - pop
+    bonds = np.asarray(bonds, dtype=int).reshape(-1, 2)
+    orders = dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)
+    dip = (q @ np.asarray(coords, dtype=float)) * E_ANGSTROM_DEBYE
+    return GroundState(pop, q, orders, dip)

@@ -1,0 +1,23 @@
+"""Options shared by the subcommands that compute molecules."""
+from __future__ import annotations
+
+from ..driver import Options
+from ..model.params import GAMMA_FORMULAS
+
+
+def add_model_arguments(p) -> None:
+    g = p.add_argument_group("model")
+    g.add_argument("--parameters", metavar="SET", help="parameter set name or TOML path (see 'ppp parameters')")
+    g.add_argument("--gamma", choices=GAMMA_FORMULAS, help="two-centre repulsion formula (default: the set's)")
+    g.add_argument("--singlets", type=int, default=10, metavar="N", help="singlet states per chromophore (10)")
+    g.add_argument("--triplets", type=int, default=10, metavar="N", help="triplet states per chromophore (10)")
+    g.add_argument("--input-coordinates", action="store_true",
+                   help="use the coordinates of the MOL/SDF records instead of idealised planar ones")
+    g.add_argument("--max-centres", type=int, default=300, metavar="N",
+                   help="refuse chromophores with more pi-centres than this (300)")
+
+
+def options_from(args) -> Options:
+    return Options(parameters=args.parameters, gamma=args.gamma, n_singlets=args.singlets,
+                   n_triplets=args.triplets, coordinates="input" if args.input_coordinates else "depiction",
+                   max_centres=args.max_centres)

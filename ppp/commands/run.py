@@ -1,0 +1,66 @@
+"""``ppp run``: compute a few molecules given on the command line or in a MOL/SDF file."""
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+from .. import __version__
+from ..driver import compute
+from ..errors import PPPError, StorageError
+from ..io import h5_io
+from ..structure.readers import read_molfile
+from .common import add_model_arguments, options_from
+
+NAME = "run"
+HELP = "excited states of molecules given as SMILES or in a MOL/SDF file"
+
+
+def add_arguments(p) -> None:
+    p.add_argument("smiles", nargs="*", metavar="SMILES", help="one or more SMILES strings")
+    p.add_argument("--file", "-f", metavar="MOLFILE", help="MOL or SDF file (every record is computed)")
+    p.add_argument("--json", action="store_true", help="print JSON (schema: ppp/io/result.schema.json)")
+    p.add_argument("--save", metavar="FILE.h5", help="write the full record (model, orbitals, CI vectors) to HDF5")
+    p.add_argument("--overwrite", action="store_true", help="allow --save to replace an existing file")
+    add_model_arguments(p)
+
+
+def main(args) -> int:
+    options = options_from(args)
+    if args.save and Path(args.save).exists() and not args.overwrite:
+        raise StorageError(f"'{args.save}' exists; add --overwrite to replace it")
+    jobs = [(s, s) for s in args.smiles]
+    if args.file:
+        for rec in read_molfile(args.file):
+            jobs.append((rec.label, rec.mol if rec.mol is not None else rec.error))
+    if not jobs:
+        raise PPPError("nothing to compute: give SMILES strings or --file")
+    results, errors = [], []
+    for label, item in jobs:
+        try:
+            if isinstance(item, PPPError):
+                raise item
+            res = compute(item, name=label, options=options)
+        except PPPError as err:
+            err.with_molecule(label)
+            errors.append(err)
+            if not args.json:
+                print(f"error: {err}", file=sys.stderr)
+            continue
+        results.append(res)
+        if not args.json:
+            print(res.table())
+            print()
+    if args.json:
+        doc = {"program": {"name": "ppp", "version": __version__},
+               "results": [r.to_dict() for r in results],
+               "errors": [{"name": e.molecule, "kind": e.kind, "reason": e.reason} for e in errors]}
+        json.dump(doc, sys.stdout, indent=1)
+        sys.stdout.write("\n")
+        for e in errors:
+            print(f"error: {e}", file=sys.stderr)
+    if args.save and results:
+        h5_io.save(results, args.save, overwrite=args.overwrite)
+        if not args.json:
+            print(f"saved {len(results)} molecule(s) to {args.save}")
+    return 1 if errors else 0

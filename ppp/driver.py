@@ -1,0 +1,280 @@
+"""Thin driver: structure -> pi-systems -> model -> SCF -> CIS -> observables.
+
+``compute`` is the one entry point the command line, the batch runner and notebook users share.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from rdkit import Chem
+
+from .analysis.properties import (Configuration, GroundState, dominant_configurations, ground_state,
+                                  oscillator_strengths, polarization, transition_dipoles)
+from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
+from .model import params as param_registry
+from .model.hamiltonian import Model, build_model
+from .solvers import cis as cis_solver
+from .solvers import scf as scf_solver
+from .structure.geometry import centre_coordinates
+from .structure.perceive import PiSystem, perceive
+from .structure.readers import mol_from_smiles
+from .units import ev_to_nm
+
+#: Oscillator strength above which a singlet counts as a "bright" band.
+BRIGHT_F = 0.01
+
+
+@dataclass(frozen=True)
+class Options:
+    """What to compute and how. All fields have working defaults.
+
+    parameters : parameter set name or path to a TOML file (None: the registry default)
+    gamma : "mataga-nishimoto" or "ohno" (None: the parameter set's choice)
+    n_singlets, n_triplets : CIS roots per multiplicity
+    coordinates : "depiction" (idealised 2D, default) or "input" (coordinates of a MOL/SDF record)
+    max_centres : largest chromophore accepted (dense CIS memory grows as N^4)
+    max_iter : SCF iterations per attempt
+    """
+
+    parameters: str | None = None
+    gamma: str | None = None
+    n_singlets: int = 10
+    n_triplets: int = 10
+    coordinates: str = "depiction"
+    max_centres: int = 300
+    max_iter: int = 100
+
+    def __post_init__(self):
+        for name in ("n_singlets", "n_triplets"):
+            val = getattr(self, name)
+            if not isinstance(val, int) or val < 0:
+                raise InputError(f"{name} must be a non-negative whole number, got {val!r}")
+        if self.coordinates not in ("depiction", "input"):
+            raise InputError(f"coordinates must be 'depiction' or 'input', got {self.coordinates!r}")
+        if self.gamma is not None and self.gamma not in param_registry.GAMMA_FORMULAS:
+            raise InputError(
+                f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
+
+
+@dataclass(frozen=True)
+class State:
+    """One excited state of one chromophore."""
+
+    multiplicity: int
+    index: int  # 1-based within its multiplicity and chromophore
+    chromophore: int  # 0-based
+    energy_ev: float
+    oscillator_strength: float
+    transition_dipole: tuple[float, float, float]  # e*A, principal-axis frame (zero for triplets)
+    polarization_deg: float | None
+    polarization: str
+    configurations: tuple[Configuration, ...]
+
+    @property
+    def wavelength_nm(self) -> float:
+        return float(ev_to_nm(self.energy_ev)) if self.energy_ev > 0 else float("inf")
+
+    @property
+    def label(self) -> str:
+        return f"{'S' if self.multiplicity == 1 else 'T'}{self.index}"
+
+    @property
+    def character(self) -> str:
+        return ", ".join(str(c) for c in self.configurations)
+
+
+@dataclass(frozen=True)
+class ChromophoreResult:
+    """Everything computed for one pi-system."""
+
+    index: int
+    atom_indices: np.ndarray  # RDKit atom indices of the centres
+    model: Model
+    scf: scf_solver.SCFResult
+    ground: GroundState
+    singlets: tuple[State, ...]
+    triplets: tuple[State, ...]
+    singlet_amplitudes: np.ndarray  # (k, n_occ, n_vir)
+    triplet_amplitudes: np.ndarray
+
+    @property
+    def e_total(self) -> float:
+        """Total pi energy (electronic + core-core repulsion), eV."""
+        return self.scf.e_elec + self.model.e_core
+
+    @property
+    def homo_ev(self) -> float:
+        return float(self.scf.mo_energy[self.model.n_occ - 1])
+
+    @property
+    def lumo_ev(self) -> float:
+        return float(self.scf.mo_energy[self.model.n_occ])
+
+
+@dataclass(frozen=True)
+class MoleculeResult:
+    """Result for one input molecule: one or more chromophores."""
+
+    name: str
+    smiles: str
+    canonical_smiles: str
+    parameters: str
+    parameters_sha256: str
+    options: Options
+    chromophores: tuple[ChromophoreResult, ...]
+
+    @property
+    def states(self) -> tuple[State, ...]:
+        """All excited states of all chromophores, singlets then triplets, each by energy."""
+        s = sorted((st for c in self.chromophores for st in c.singlets), key=lambda st: st.energy_ev)
+        t = sorted((st for c in self.chromophores for st in c.triplets), key=lambda st: st.energy_ev)
+        return tuple(s + t)
+
+    @property
+    def singlets(self) -> tuple[State, ...]:
+        return tuple(st for st in self.states if st.multiplicity == 1)
+
+    @property
+    def triplets(self) -> tuple[State, ...]:
+        return tuple(st for st in self.states if st.multiplicity == 3)
+
+    @property
+    def s1(self) -> State | None:
+        return self.singlets[0] if self.singlets else None
+
+    @property
+    def t1(self) -> State | None:
+        return self.triplets[0] if self.triplets else None
+
+    @property
+    def brightest(self) -> State | None:
+        """Singlet with the largest oscillator strength among those computed."""
+        return max(self.singlets, key=lambda st: st.oscillator_strength, default=None)
+
+    @property
+    def first_bright(self) -> State | None:
+        """Lowest singlet with f >= BRIGHT_F: the longest-wavelength allowed band."""
+        return next((st for st in self.singlets if st.oscillator_strength >= BRIGHT_F), None)
+
+    @property
+    def lambda_max_nm(self) -> float | None:
+        """Wavelength of the brightest computed singlet, nm."""
+        b = self.brightest
+        return b.wavelength_nm if b is not None else None
+
+    def table(self) -> str:
+        from .io.text import format_result
+        return format_result(self)
+
+    def to_dict(self) -> dict:
+        from .io.json_io import result_to_dict
+        return result_to_dict(self)
+
+    def __str__(self) -> str:
+        return self.table()
+
+
+def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model: Model) -> tuple[State, ...]:
+    n_occ = model.n_occ
+    if multiplicity == 1 and len(res.energies):
+        tdm = transition_dipoles(scf.mo_coeff, n_occ, res.amplitudes, model.coords)
+        f = oscillator_strengths(res.energies, tdm)
+    else:
+        tdm = np.zeros((len(res.energies), 3))
+        f = np.zeros(len(res.energies))
+    confs = dominant_configurations(res.amplitudes, n_occ)
+    out = []
+    for k, e in enumerate(res.energies):
+        angle, label = polarization(tdm[k]) if multiplicity == 1 else (None, "-")
+        out.append(State(multiplicity, k + 1, chrom, float(e), float(f[k]), tuple(float(x) for x in tdm[k]),
+                         angle, label, confs[k]))
+    return tuple(out)
+
+
+def solve_model(model: Model, options: Options = Options(), index: int = 0,
+                atom_indices: np.ndarray | None = None) -> ChromophoreResult:
+    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError."""
+    scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter)
+    if not scf.converged:
+        raise ConvergenceError(
+            f"SCF did not converge for chromophore {index + 1} ({model.n_centres} centres) after "
+            f"{scf.iterations} iterations (last |FP-PF| = {scf.max_error:.1e} eV); no states reported")
+    sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
+    trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3)
+    for res, kind in ((sing, "singlet"), (trip, "triplet")):
+        # a non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus
+        # 1967 instability): the molecule has open-shell / biradical character the model cannot describe
+        if len(res.energies) and res.energies[0] <= 0.0:
+            raise UnsupportedError(
+                f"closed-shell ground state of chromophore {index + 1} is unstable (lowest {kind} "
+                f"excitation {res.energies[0]:.3f} eV <= 0): open-shell or biradical character")
+    return ChromophoreResult(
+        index=index,
+        atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
+        model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
+        singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
+        singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes,
+    )
+
+
+def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiSystem, Model], ...]:
+    """Perceive the pi-systems of a molecule and build one model per chromophore."""
+    pset = param_registry.load(options.parameters)
+    work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+    systems = perceive(work)
+    for k, sys_ in enumerate(systems):
+        if sys_.n_centres > options.max_centres:
+            raise TooLargeError(
+                f"chromophore {k + 1} has {sys_.n_centres} pi-centres, more than the limit of "
+                f"{options.max_centres}")
+    all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
+    out = []
+    for sys_ in systems:
+        coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, pset.bond_length_angstrom,
+                                    options.coordinates, all_pi_bonds=all_bonds)
+        labels = [f"atom {i + 1} ({e})" for i, e in zip(sys_.atom_indices, sys_.elements)]
+        model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, coords, pset,
+                            options.gamma, atom_labels=labels)
+        out.append((sys_, model))
+    return tuple(out)
+
+
+def compute(structure: str | Chem.Mol, name: str | None = None, options: Options | None = None,
+            **kwargs) -> MoleculeResult:
+    """Predict the pi->pi* excited states of one molecule.
+
+    Parameters
+    ----------
+    structure : SMILES string or RDKit molecule (e.g. from a MOL/SDF record)
+    name : label used in output and error messages (default: the SMILES)
+    options : :class:`Options`; keyword arguments override its fields, e.g. ``n_singlets=5``
+
+    Raises a :class:`~ppp.errors.PPPError` subclass naming the molecule on any failure.
+    """
+    opts = options or Options()
+    if kwargs:
+        from dataclasses import replace
+        try:
+            opts = replace(opts, **kwargs)
+        except TypeError as exc:
+            raise InputError(str(exc)) from None
+    if isinstance(structure, str):
+        label = name or structure
+        smiles_in = structure
+    else:
+        label = name or (structure.GetProp("_Name") if structure.HasProp("_Name") else "") or "molecule"
+        smiles_in = ""
+    try:
+        mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
+        if not smiles_in:
+            smiles_in = Chem.MolToSmiles(mol)
+        canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
+        pset = param_registry.load(opts.parameters)
+        chroms = []
+        for k, (sys_, model) in enumerate(build_models(mol, opts)):
+            chroms.append(solve_model(model, opts, index=k, atom_indices=sys_.atom_indices))
+    except PPPError as err:
+        raise err.with_molecule(label)
+    return MoleculeResult(name=label, smiles=smiles_in, canonical_smiles=canonical, parameters=pset.name,
+                          parameters_sha256=pset.sha256, options=opts, chromophores=tuple(chroms))

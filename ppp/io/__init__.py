@@ -1,0 +1,1 @@
+"""Stage 5: readers for structures, and JSON / HDF5 / text output."""

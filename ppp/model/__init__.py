@@ -1,0 +1,1 @@
+"""Stage 2: parameter sets and the PPP model matrices (core Hamiltonian, gamma)."""

@@ -1,0 +1,1 @@
+"""Stage 3: closed-shell SCF and CIS on plain arrays."""

@@ -1,0 +1,214 @@
+"""pi-system perception: which atoms carry a p orbital in the conjugated system, their type, core
+charge and electron count, and how they split into separate chromophores.
+
+Rules (common practice in PPP work, written out so they can be checked):
+
+* An atom is *unsaturated* when it takes part in a double, triple or aromatic bond to another
+  C, N, O, B or divalent S atom. Multiple bonds to hypervalent S or P (sulfone, sulfonate,
+  sulfoxide, phosphonate) do not conjugate and are left out with their oxygens. A multiple bond
+  from the system to any other element is an error naming the atom.
+* A *donor* is a saturated-looking atom with a p-type lone pair or an empty p orbital bonded to
+  an unsaturated atom: amine/amide/pyrrole N (three sigma bonds), ether/hydroxy/furan O, phenolate
+  O-, thioether S, halogens, carbanion and carbocation C, and trivalent B. Atoms with four sigma
+  bonds (sp3 C, ammonium N+) are never part of the system.
+* The centre type follows the element and the number of sigma bonds, not the resonance form, so
+  that symmetric cyanines, carboxylates and nitro groups keep their symmetry:
+  N with <= 2 sigma bonds is ``N.aza`` (core charge Z = 1), with 3 it is ``N.amino`` (Z = 2);
+  O with 1 sigma bond is ``O.oxo`` (Z = 1), with 2 ``O.oxa`` (Z = 2); S likewise ``S.thioxo`` /
+  ``S.thia``; halogens Z = 2; B Z = 0; C Z = 1.
+* Each centre's nominal pi-electron count is ``Z - formal charge`` (pyridine N 1, pyrrole N 2,
+  iminium N+ 1, carbonyl O 1, phenolate O- 2, B 0). The pi-electron count of a chromophore is the
+  sum, so its net pi charge equals the sum of the formal charges of its atoms.
+* Connected pi-centres form one chromophore. A molecule with several unconnected pi-systems gives
+  several chromophores, each solved on its own (no coupling between them).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from rdkit import Chem
+
+from ..errors import ParseError, UnsupportedError
+
+#: Elements that can hold a pi multiple bond inside the system.
+_MULTIPLE_BOND_ELEMENTS = {"C", "N", "O", "B", "S"}
+#: Elements whose hypervalent multiple bonds (S=O in sulfones, P=O) are non-conjugating groups.
+_NON_CONJUGATING_CENTRES = {"S", "P"}
+_HALOGENS = {"F", "Cl", "Br", "I"}
+
+
+@dataclass(frozen=True)
+class PiSystem:
+    """One chromophore: N pi-centres of a molecule.
+
+    Attributes
+    ----------
+    atom_indices : (N,) int   RDKit atom index of each centre (in the heavy-atom molecule)
+    elements : tuple of N str
+    types : tuple of N str    centre type names, keys into a parameter set
+    core_charges : (N,) int   Z, pi electrons each centre gives to the neutral system
+    n_pi : (N,) int           nominal pi-electron count per centre (Z - formal charge)
+    bonds : (M, 2) int        pairs of local centre indices that are sigma-bonded
+    n_electrons : int         pi electrons in the chromophore
+    charge : int              net pi charge, sum(Z) - n_electrons
+    """
+
+    atom_indices: np.ndarray
+    elements: tuple[str, ...]
+    types: tuple[str, ...]
+    core_charges: np.ndarray
+    n_pi: np.ndarray
+    bonds: np.ndarray
+    n_electrons: int
+    charge: int
+
+    @property
+    def n_centres(self) -> int:
+        return len(self.atom_indices)
+
+
+def _atom_name(atom: Chem.Atom) -> str:
+    return f"atom {atom.GetIdx() + 1} ({atom.GetSymbol()})"
+
+
+def _sigma_bonds(atom: Chem.Atom) -> int:
+    return atom.GetDegree() + atom.GetTotalNumHs()
+
+
+def _is_hypervalent(atom: Chem.Atom) -> bool:
+    return atom.GetSymbol() in _NON_CONJUGATING_CENTRES and (
+        atom.GetSymbol() == "P" or _sigma_bonds(atom) > 2 or atom.GetTotalValence() > 2
+    )
+
+
+def centre_type(atom: Chem.Atom) -> str:
+    """Type name of a pi-centre from its element and number of sigma bonds."""
+    sym, nsig = atom.GetSymbol(), _sigma_bonds(atom)
+    if sym == "C" and nsig <= 3:
+        return "C"
+    if sym == "N" and nsig <= 3:
+        return "N.aza" if nsig <= 2 else "N.amino"
+    if sym == "O" and nsig <= 2:
+        return "O.oxo" if nsig == 1 else "O.oxa"
+    if sym == "S" and nsig <= 2:
+        return "S.thioxo" if nsig == 1 else "S.thia"
+    if sym in _HALOGENS and nsig == 1:
+        return sym
+    if sym == "B" and nsig == 3:
+        return "B"
+    raise UnsupportedError(f"{_atom_name(atom)} with {nsig} sigma bonds is not covered by the pi model")
+
+
+#: Core charge Z of each centre type: pi electrons it gives to the neutral pi-system.
+STRUCTURAL_Z = {"C": 1, "N.aza": 1, "N.amino": 2, "O.oxo": 1, "O.oxa": 2, "S.thia": 2,
+                 "S.thioxo": 1, "F": 2, "Cl": 2, "Br": 2, "I": 2, "B": 0}
+
+
+def _is_donor(atom: Chem.Atom) -> bool:
+    """Saturated-looking atom with a p lone pair or empty p orbital that can join the system."""
+    sym, nsig, fc = atom.GetSymbol(), _sigma_bonds(atom), atom.GetFormalCharge()
+    if sym == "N":
+        return (nsig == 3 and fc == 0) or (nsig == 2 and fc == -1)
+    if sym == "O":
+        return (nsig == 2 and fc == 0) or (nsig == 1 and fc == -1)
+    if sym == "S":
+        return (nsig == 2 and fc == 0) or (nsig == 1 and fc == -1)
+    if sym in _HALOGENS:
+        return nsig == 1 and fc == 0
+    if sym == "C":
+        return nsig == 3 and fc in (-1, 1)
+    if sym == "B":
+        return nsig == 3 and fc == 0
+    return False
+
+
+def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
+    """Find the pi-systems of a sanitized RDKit molecule.
+
+    Returns the chromophores ordered by their lowest atom index. Raises UnsupportedError for
+    radicals, open-shell chromophores, multiple bonds to uncovered elements, and molecules
+    without any pi-system.
+    """
+    for atom in mol.GetAtoms():
+        if atom.GetNumRadicalElectrons():
+            raise UnsupportedError(f"radical: {_atom_name(atom)} has an unpaired electron")
+    kek = Chem.Mol(mol)
+    try:
+        Chem.Kekulize(kek, clearAromaticFlags=True)
+    except Exception:
+        raise ParseError("cannot assign a Kekule structure to the aromatic rings") from None
+
+    n_atoms = kek.GetNumAtoms()
+    unsaturated = np.zeros(n_atoms, dtype=bool)
+    for bond in kek.GetBonds():
+        if bond.GetBondType() not in (Chem.BondType.DOUBLE, Chem.BondType.TRIPLE):
+            continue
+        a, b = bond.GetBeginAtom(), bond.GetEndAtom()
+        if _is_hypervalent(a) or _is_hypervalent(b):
+            continue  # S=O / P=O of sulfones, sulfonates, phosphonates: non-conjugating
+        for x, y in ((a, b), (b, a)):
+            if x.GetSymbol() not in _MULTIPLE_BOND_ELEMENTS:
+                raise UnsupportedError(
+                    f"{_atom_name(x)}: multiple bond to {_atom_name(y)} is not covered by the pi model")
+        unsaturated[a.GetIdx()] = unsaturated[b.GetIdx()] = True
+
+    in_pi = unsaturated.copy()
+    for atom in kek.GetAtoms():
+        i = atom.GetIdx()
+        if unsaturated[i] or not _is_donor(atom):
+            continue
+        if any(unsaturated[nb.GetIdx()] for nb in atom.GetNeighbors()):
+            in_pi[i] = True
+
+    if not in_pi.any():
+        raise UnsupportedError("no pi-system (no conjugated multiple bonds)")
+
+    # connected components of the pi graph
+    comp = -np.ones(n_atoms, dtype=int)
+    n_comp = 0
+    for start in range(n_atoms):
+        if not in_pi[start] or comp[start] >= 0:
+            continue
+        stack = [start]
+        comp[start] = n_comp
+        while stack:
+            i = stack.pop()
+            for nb in kek.GetAtomWithIdx(i).GetNeighbors():
+                j = nb.GetIdx()
+                if in_pi[j] and comp[j] < 0:
+                    comp[j] = n_comp
+                    stack.append(j)
+        n_comp += 1
+
+    systems = []
+    for c in range(n_comp):
+        idx = np.flatnonzero(comp == c)
+        local = {int(a): k for k, a in enumerate(idx)}
+        atoms = [kek.GetAtomWithIdx(int(a)) for a in idx]
+        types = tuple(centre_type(a) for a in atoms)
+        z = np.array([STRUCTURAL_Z[t] for t in types], dtype=int)
+        fc = np.array([a.GetFormalCharge() for a in atoms], dtype=int)
+        n_pi = z - fc
+        for a, n in zip(atoms, n_pi):
+            if not 0 <= n <= 2:
+                raise UnsupportedError(
+                    f"{_atom_name(a)} with formal charge {a.GetFormalCharge():+d} would hold {n} pi electrons")
+        bonds = sorted(
+            (min(local[b.GetBeginAtomIdx()], local[b.GetEndAtomIdx()]),
+             max(local[b.GetBeginAtomIdx()], local[b.GetEndAtomIdx()]))
+            for b in kek.GetBonds()
+            if b.GetBeginAtomIdx() in local and b.GetEndAtomIdx() in local
+        )
+        n_el = int(n_pi.sum())
+        label = f"chromophore {c + 1} ({len(idx)} centres)"
+        if n_el % 2:
+            raise UnsupportedError(f"open shell: {label} has an odd number ({n_el}) of pi electrons")
+        if n_el == 0 or n_el >= 2 * len(idx):
+            raise UnsupportedError(f"{label} has {n_el} pi electrons: no excitation possible")
+        systems.append(PiSystem(
+            atom_indices=idx.astype(int), elements=tuple(a.GetSymbol() for a in atoms), types=types,
+            core_charges=z, n_pi=n_pi.astype(int), bonds=np.array(bonds, dtype=int).reshape(-1, 2),
+            n_electrons=n_el, charge=int(z.sum()) - n_el,
+        ))
+    return tuple(systems)
