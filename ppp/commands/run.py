@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import json
 import sys
+import traceback
 from pathlib import Path
 
 from .. import __version__
@@ -44,6 +45,8 @@ def main(args) -> int:
         except PPPError as err:
             err.with_molecule(label)
             errors.append(err)
+            if getattr(args, "traceback", False):
+                traceback.print_exception(err, file=sys.stderr)
             if not args.json:
                 print(f"error: {err}", file=sys.stderr)
             continue

@@ -203,7 +203,8 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
         n_el = int(n_pi.sum())
         label = f"chromophore {c + 1} ({len(idx)} centres)"
         if n_el % 2:
-            raise UnsupportedError(f"open shell: {label} has an odd number ({n_el}) of pi electrons")
+            raise UnsupportedError(
+                f"{label} has an odd number ({n_el}) of pi electrons: open shell, or bonding the model does not cover")
         if n_el == 0 or n_el >= 2 * len(idx):
             raise UnsupportedError(f"{label} has {n_el} pi electrons: no excitation possible")
         systems.append(PiSystem(

@@ -1,0 +1,104 @@
+"""pi-system perception: centre types, electron counts, charges, chromophore splitting.
+
+Expected counts are the textbook pi-electron bookkeeping of each functional group (common practice):
+pyridine N 1, pyrrole N 2, aniline N 2, iminium N+ 1, carbonyl O 1, ether/furan O 2, phenolate O- 2,
+thiophene S 2, halogen 2, nitro (N 1 + O 1 + O- 2), cyano (C 1 + N 1), trivalent B 0.
+"""
+from __future__ import annotations
+
+import pytest
+
+from ppp.errors import ParseError, UnsupportedError
+from ppp.structure.perceive import perceive
+from ppp.structure.readers import mol_from_smiles
+
+
+def pis(smiles):
+    return perceive(mol_from_smiles(smiles))
+
+
+def by_element(system, symbol):
+    return [(t, int(n)) for e, t, n in zip(system.elements, system.types, system.n_pi) if e == symbol]
+
+
+@pytest.mark.parametrize("smiles, element, expected, n_el, charge", [
+    ("c1ccncc1", "N", [("N.aza", 1)], 6, 0),                 # pyridine
+    ("c1cc[nH]c1", "N", [("N.amino", 2)], 6, 0),             # pyrrole
+    ("Nc1ccccc1", "N", [("N.amino", 2)], 8, 0),              # aniline
+    ("CN(C)C=C", "N", [("N.amino", 2)], 4, 0),               # enamine
+    ("CC(=O)Nc1ccccc1", "N", [("N.amino", 2)], 10, 0),       # amide N (acetanilide)
+    ("C[N+](C)=Cc1ccccc1", "N", [("N.amino", 1)], 8, 1),    # iminium N+
+    ("O=Cc1ccccc1", "O", [("O.oxo", 1)], 8, 0),              # carbonyl O
+    ("COc1ccccc1", "O", [("O.oxa", 2)], 8, 0),               # ether O (anisole)
+    ("Oc1ccccc1", "O", [("O.oxa", 2)], 8, 0),                # hydroxy O (phenol)
+    ("c1ccoc1", "O", [("O.oxa", 2)], 6, 0),                  # furan
+    ("[O-]c1ccccc1", "O", [("O.oxo", 2)], 8, -1),            # phenolate O-
+    ("c1ccsc1", "S", [("S.thia", 2)], 6, 0),                 # thiophene
+    ("CSc1ccccc1", "S", [("S.thia", 2)], 8, 0),              # thioether
+    ("Fc1ccccc1", "F", [("F", 2)], 8, 0),
+    ("Clc1ccccc1", "Cl", [("Cl", 2)], 8, 0),
+    ("Brc1ccccc1", "Br", [("Br", 2)], 8, 0),
+    ("N#Cc1ccccc1", "N", [("N.aza", 1)], 8, 0),              # cyano
+    ("CB(C)c1ccccc1", "B", [("B", 0)], 6, 0),                # trivalent boron
+])
+def test_centre_types_and_counts(smiles, element, expected, n_el, charge):
+    (system,) = pis(smiles)
+    assert by_element(system, element) == expected
+    assert system.n_electrons == n_el
+    assert system.charge == charge
+
+
+def test_nitro_group_counts_four_electrons_on_three_centres():
+    (system,) = pis("O=[N+]([O-])c1ccccc1")
+    assert sorted(by_element(system, "O")) == [("O.oxo", 1), ("O.oxo", 2)]
+    assert by_element(system, "N") == [("N.amino", 1)]
+    assert system.n_electrons == 10 and system.charge == 0
+
+
+def test_resonance_forms_give_identical_types():
+    # The two Kekule/charge placements of a streptocyanine are the same molecule: same types.
+    a = pis("CN(C)C=CC=[N+](C)C")[0]
+    b = pis("C[N+](C)=CC=CN(C)C")[0]
+    assert sorted(a.types) == sorted(b.types) and a.n_electrons == b.n_electrons == 6
+
+
+@pytest.mark.parametrize("smiles, n_centres", [
+    ("OS(=O)(=O)c1ccccc1", 6),            # sulfonic acid left out
+    ("[O-]S(=O)(=O)c1ccccc1", 6),         # sulfonate left out
+    ("CS(=O)(=O)c1ccccc1", 6),            # sulfone left out
+    ("C[N+](C)(C)c1ccccc1", 6),           # ammonium left out
+    ("CCCCc1ccccc1", 6),                  # sp3 chain left out
+    ("OCCc1ccccc1", 6),                   # aliphatic OH not conjugated
+    ("NCc1ccccc1", 6),                    # benzylamine N not conjugated
+])
+def test_non_conjugating_groups_left_out(smiles, n_centres):
+    (system,) = pis(smiles)
+    assert system.n_centres == n_centres
+
+
+def test_separate_pi_systems_are_separate_chromophores():
+    systems = pis("c1ccccc1CCc1ccc(cc1)C=O")
+    assert [s.n_centres for s in systems] == [6, 8]
+    assert [s.n_electrons for s in systems] == [6, 8]
+
+
+def test_salt_counter_ion_is_not_a_chromophore():
+    systems = pis("CN(C)c1ccc(cc1)C(=C1C=CC(=[N+](C)C)C=C1)c1ccccc1.[Cl-]")  # malachite-green-type cation
+    assert len(systems) == 1 and systems[0].charge == 1
+
+
+@pytest.mark.parametrize("smiles, reason", [
+    ("CCCC", "no pi-system"),
+    ("c1ccccc1[CH2]", "radical"),
+    ("[Se]=Cc1ccccc1", "(Se)"),
+    ("c1ccccc1[N+]#N", "odd number"),
+])
+def test_unsupported_structures_raise_with_reason(smiles, reason):
+    with pytest.raises(UnsupportedError, match=reason.replace("(", r"\(").replace(")", r"\)")):
+        pis(smiles)
+
+
+@pytest.mark.parametrize("smiles", ["C1CC", "c1cccc1", "xyz", "", "N(C)(C)(C)(C)C"])
+def test_unparsable_smiles(smiles):
+    with pytest.raises(ParseError):
+        mol_from_smiles(smiles)
