@@ -4,7 +4,7 @@
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from rdkit import Chem
@@ -13,16 +13,20 @@ from .analysis.properties import (Configuration, GroundState, dominant_configura
                                   oscillator_strengths, polarization, transition_dipoles)
 from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
 from .model import params as param_registry
+from .model import variable_beta
 from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
 from .solvers import scf as scf_solver
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
+from .structure.twist import embed_conformer, twist_factors
 from .structure.readers import mol_from_smiles
 from .units import ev_to_nm
 
 #: Oscillator strength above which a singlet counts as a "bright" band.
 BRIGHT_F = 0.01
+#: Where centre coordinates can come from (see :class:`Options`).
+COORDINATE_SOURCES = ("depiction", "input", "conformer")
 
 
 @dataclass(frozen=True)
@@ -32,9 +36,13 @@ class Options:
     parameters : parameter set name or path to a TOML file (None: the registry default)
     gamma : "mataga-nishimoto" or "ohno" (None: the parameter set's choice)
     n_singlets, n_triplets : CIS roots per multiplicity
-    coordinates : "depiction" (idealised 2D, default) or "input" (coordinates of a MOL/SDF record)
+    coordinates : "depiction" (idealised 2D, default), "input" (coordinates of a MOL/SDF record) or
+        "conformer" (RDKit 3D embedding relaxed with MMFF94, seeded by ``conformer_seed``)
     max_centres : largest chromophore accepted (dense CIS memory grows as N^4)
     max_iter : SCF iterations per attempt
+    bond_order_beta : iterate beta with the SCF bond orders (True/False; None: the parameter set's choice)
+    twist : scale beta by |cos| of the angle between p axes when coordinates are 3D
+    conformer_seed : random seed of the conformer embedding
     """
 
     parameters: str | None = None
@@ -44,14 +52,18 @@ class Options:
     coordinates: str = "depiction"
     max_centres: int = 300
     max_iter: int = 100
+    bond_order_beta: bool | None = None
+    twist: bool = True
+    conformer_seed: int = 42
 
     def __post_init__(self):
         for name in ("n_singlets", "n_triplets"):
             val = getattr(self, name)
             if not isinstance(val, int) or val < 0:
                 raise InputError(f"{name} must be a non-negative whole number, got {val!r}")
-        if self.coordinates not in ("depiction", "input"):
-            raise InputError(f"coordinates must be 'depiction' or 'input', got {self.coordinates!r}")
+        if self.coordinates not in COORDINATE_SOURCES:
+            raise InputError(f"coordinates must be one of {', '.join(COORDINATE_SOURCES)}, "
+                             f"got {self.coordinates!r}")
         if self.gamma is not None and self.gamma not in param_registry.GAMMA_FORMULAS:
             raise InputError(
                 f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
@@ -192,14 +204,30 @@ def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model
     return tuple(out)
 
 
-def solve_model(model: Model, options: Options = Options(), index: int = 0,
-                atom_indices: np.ndarray | None = None) -> ChromophoreResult:
-    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError."""
+def ground_scf(model: Model, options: Options = Options(), index: int = 0):
+    """SCF of one model; with ``model.bond_order_beta`` set, iterated with bond-order betas.
+
+    Returns (model, scf): the model carries the final core Hamiltonian. Raises ConvergenceError.
+    """
+    if model.bond_order_beta is not None:
+        try:
+            vb = variable_beta.iterate(model.core, model.gamma, model.n_occ, model.types, model.bonds,
+                                       model.bond_order_beta, scf_solver.kernel, max_iter=options.max_iter)
+        except ConvergenceError as err:
+            raise ConvergenceError(f"chromophore {index + 1} ({model.n_centres} centres): {err.reason}") from None
+        return replace(model, core=vb.core), vb.scf
     scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter)
     if not scf.converged:
         raise ConvergenceError(
             f"SCF did not converge for chromophore {index + 1} ({model.n_centres} centres) after "
             f"{scf.iterations} iterations (last |FP-PF| = {scf.max_error:.1e} eV); no states reported")
+    return model, scf
+
+
+def solve_model(model: Model, options: Options = Options(), index: int = 0,
+                atom_indices: np.ndarray | None = None) -> ChromophoreResult:
+    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError."""
+    model, scf = ground_scf(model, options, index)
     sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
     trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3)
     for res, kind in ((sing, "singlet"), (trip, "triplet")):
@@ -218,9 +246,25 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
     )
 
 
-def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiSystem, Model], ...]:
-    """Perceive the pi-systems of a molecule and build one model per chromophore."""
-    pset = param_registry.load(options.parameters)
+@dataclass(frozen=True)
+class Prepared:
+    """Geometry-side input of one chromophore, independent of the parameter values.
+
+    system : the perceived pi-system;  coords : (N, 3) A;  twist : (M,) |cos theta| per bond or None
+    """
+
+    system: PiSystem
+    coords: np.ndarray
+    twist: np.ndarray | None
+
+
+def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | None = None) -> tuple[Prepared, ...]:
+    """Perceive the pi-systems of a molecule and place their centres (depiction, input or conformer).
+
+    ``bond_length`` (A) scales 2D coordinates; default: the parameter set's standard length.
+    """
+    if bond_length is None:
+        bond_length = param_registry.load(options.parameters).bond_length_angstrom
     work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
     systems = perceive(work)
     for k, sys_ in enumerate(systems):
@@ -228,16 +272,40 @@ def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiS
             raise TooLargeError(
                 f"chromophore {k + 1} has {sys_.n_centres} pi-centres, more than the limit of "
                 f"{options.max_centres}")
+    source, geo = options.coordinates, work
+    if source == "conformer":
+        geo, _ = embed_conformer(work, options.conformer_seed)
+        source = "input"
+    is3d = False
+    if source == "input" and geo.GetNumConformers():
+        conf = geo.GetConformer()
+        pos = np.asarray(conf.GetPositions(), dtype=float)
+        is3d = bool(conf.Is3D()) and bool(np.ptp(pos[:, 2]) > 1e-6)
     all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
     out = []
     for sys_ in systems:
-        coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, pset.bond_length_angstrom,
-                                    options.coordinates, all_pi_bonds=all_bonds)
-        labels = [f"atom {i + 1} ({e})" for i, e in zip(sys_.atom_indices, sys_.elements)]
-        model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, coords, pset,
-                            options.gamma, atom_labels=labels)
-        out.append((sys_, model))
+        coords = centre_coordinates(geo, sys_.atom_indices, sys_.bonds, bond_length, source,
+                                    all_pi_bonds=all_bonds)
+        twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
+        out.append(Prepared(sys_, coords, twist))
     return tuple(out)
+
+
+def model_for(prep: Prepared, pset: param_registry.ParameterSet, options: Options = Options()) -> Model:
+    """The PPP model of one prepared chromophore under a parameter set and the options."""
+    sys_ = prep.system
+    labels = [f"atom {i + 1} ({e})" for i, e in zip(sys_.atom_indices, sys_.elements)]
+    use_vb = pset.bond_order_beta_enabled if options.bond_order_beta is None else options.bond_order_beta
+    settings = (pset.bond_order_beta or variable_beta.BondOrderBeta()) if use_vb else None
+    return build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, prep.coords, pset,
+                       options.gamma, atom_labels=labels, twist_factors=prep.twist, bond_order_beta=settings)
+
+
+def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiSystem, Model], ...]:
+    """Perceive the pi-systems of a molecule and build one model per chromophore."""
+    pset = param_registry.load(options.parameters)
+    return tuple((p.system, model_for(p, pset, options))
+                 for p in prepare(mol, options, pset.bond_length_angstrom))
 
 
 def compute(structure: str | Chem.Mol, name: str | None = None, options: Options | None = None,

@@ -35,5 +35,8 @@ def format_result(res) -> str:
                      f"{pol:<13} {st.character}")
     b = res.first_bright
     if b is not None:
-        lines.append(f"  first allowed band: {b.label} at {b.wavelength_nm:.1f} nm (f = {b.oscillator_strength:.3f})")
+        from ..calibration.uncertainty import for_result
+        unc = for_result(res, b)  # expected error of the molecule's class, if the parameter set has one
+        lines.append(f"  first allowed band: {b.label} at {b.wavelength_nm:.1f} nm"
+                     f"{' ' + str(unc) if unc is not None else ''} (f = {b.oscillator_strength:.3f})")
     return "\n".join(lines)

@@ -20,6 +20,7 @@ import numpy as np
 from ..errors import ParameterError
 from ..units import COULOMB_EV_ANGSTROM
 from .params import GAMMA_FORMULAS, ParameterSet
+from .variable_beta import BondOrderBeta
 
 
 def distance_matrix(coords: np.ndarray) -> np.ndarray:
@@ -91,6 +92,8 @@ class Model:
     gamma_formula : str
     parameters : str, parameter set name
     parameters_sha256 : str
+    bond_order_beta : settings of the bond-order-dependent beta iteration, or None (fixed beta)
+    twist_factors : (M,) |cos theta| applied to each bond's beta, or None (planar, all 1)
     """
 
     core: np.ndarray
@@ -106,6 +109,8 @@ class Model:
     gamma_formula: str
     parameters: str
     parameters_sha256: str
+    bond_order_beta: BondOrderBeta | None = None
+    twist_factors: np.ndarray | None = None
 
     @property
     def n_centres(self) -> int:
@@ -133,8 +138,15 @@ def beta_matrix(types, bonds: np.ndarray, params: ParameterSet, atom_labels=None
 
 
 def build_model(types, core_charges, n_electrons: int, bonds: np.ndarray, coords: np.ndarray,
-                params: ParameterSet, gamma_formula: str | None = None, atom_labels=None) -> Model:
-    """Assemble the model matrices for one chromophore from its perceived centres and coordinates."""
+                params: ParameterSet, gamma_formula: str | None = None, atom_labels=None,
+                twist_factors: np.ndarray | None = None,
+                bond_order_beta: BondOrderBeta | None = None) -> Model:
+    """Assemble the model matrices for one chromophore from its perceived centres and coordinates.
+
+    twist_factors : optional (M,) factors multiplying each bond's beta (|cos theta| of twisted bonds)
+    bond_order_beta : optional settings; the solver then iterates beta with the bond orders, starting
+        from the (twisted) table values built here
+    """
     missing = [(k, t) for k, t in enumerate(types) if t not in params.types]
     if missing:
         k, t = missing[0]
@@ -148,9 +160,17 @@ def build_model(types, core_charges, n_electrons: int, bonds: np.ndarray, coords
     z = np.asarray(core_charges, dtype=int)
     gamma = gamma_matrix(coords, u, formula)
     beta = beta_matrix(types, bonds, params, atom_labels)
+    bonds_arr = np.asarray(bonds, dtype=int).reshape(-1, 2)
+    if twist_factors is not None:
+        twist_factors = np.asarray(twist_factors, dtype=float)
+        if twist_factors.shape != (len(bonds_arr),):
+            raise ValueError("twist_factors must have one entry per bond")
+        beta[bonds_arr[:, 0], bonds_arr[:, 1]] *= twist_factors
+        beta[bonds_arr[:, 1], bonds_arr[:, 0]] *= twist_factors
     return Model(
         core=core_matrix(ip, z, gamma, beta), gamma=gamma, core_charges=z, n_electrons=int(n_electrons),
         e_core=core_repulsion(z, gamma), coords=np.asarray(coords, dtype=float), ip=ip, u=u,
         types=tuple(types), bonds=np.asarray(bonds, dtype=int).reshape(-1, 2), gamma_formula=formula,
         parameters=params.name, parameters_sha256=params.sha256,
+        bond_order_beta=bond_order_beta, twist_factors=twist_factors,
     )

@@ -9,7 +9,7 @@ from __future__ import annotations
 import hashlib
 import math
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
 from types import MappingProxyType
@@ -17,6 +17,7 @@ from typing import Mapping
 
 from ..errors import ParameterError
 from ..structure.perceive import STRUCTURAL_Z  # parameter files must agree with the perceived types
+from .variable_beta import BondOrderBeta, from_table as _bond_order_beta_from_table
 
 GAMMA_FORMULAS = ("mataga-nishimoto", "ohno")
 
@@ -48,6 +49,14 @@ class ParameterSet:
     gamma_formula: str
     bond_length_angstrom: float
     is_default: bool = False
+    #: settings of the bond-order-dependent beta scheme ([bond_order_beta] table), None if absent
+    bond_order_beta: BondOrderBeta | None = None
+    #: whether the set switches that scheme on unless the caller says otherwise
+    bond_order_beta_enabled: bool = False
+    #: band-position uncertainty (eV) per chemical class ([uncertainty] table), e.g. cross-validated MAE
+    uncertainty: Mapping[str, float] = field(default_factory=lambda: MappingProxyType({}))
+    #: where the uncertainty figures come from (free text)
+    uncertainty_source: str = ""
 
     @property
     def short_hash(self) -> str:
@@ -183,11 +192,38 @@ def _load_path(path: str) -> ParameterSet:
             raise ParameterError(f"{where}: {ctx} beta must be negative, got {value}")
         beta[_pair_key(*parts)] = value
 
+    bob, bob_on = None, False
+    if "bond_order_beta" in data:
+        table = need(data, "bond_order_beta", dict, "the top level")
+        bob = _bond_order_beta_from_table(table, where)
+        enabled = table.get("enabled", False)
+        if not isinstance(enabled, bool):
+            raise ParameterError(f"{where}: [bond_order_beta] enabled must be true or false")
+        bob_on = enabled
+        for pair in bob.pairs:
+            if not all(t in types for t in pair):
+                raise ParameterError(f"{where}: [bond_order_beta] pair '{'-'.join(pair)}' names an undefined type")
+    unc: dict[str, float] = {}
+    unc_source = ""
+    if "uncertainty" in data:
+        table = need(data, "uncertainty", dict, "the top level")
+        unc_source = str(table.get("source", ""))
+        classes = table.get("mae_ev", {})
+        if not isinstance(classes, dict):
+            raise ParameterError(f"{where}: [uncertainty] mae_ev must be a table of class = eV")
+        for cls in classes:
+            val = need(classes, cls, float, "[uncertainty.mae_ev]")
+            if val < 0:
+                raise ParameterError(f"{where}: [uncertainty.mae_ev] {cls} must not be negative")
+            unc[cls] = val
+
     pset = ParameterSet(
         name=name, version=version, description=description,
         sha256=hashlib.sha256(raw).hexdigest(), path=path, text=text,
         types=MappingProxyType(types), beta=MappingProxyType(beta),
         gamma_formula=formula, bond_length_angstrom=bond_length,
         is_default=bool(data.get("default", False)),
+        bond_order_beta=bob, bond_order_beta_enabled=bob_on,
+        uncertainty=MappingProxyType(unc), uncertainty_source=unc_source,
     )
     return pset

@@ -1,0 +1,141 @@
+"""Predicted band positions for a reference set, and their errors per chemical class.
+
+The geometry side of each molecule (perception, coordinates, twist factors) does not depend on the
+parameter values, so it is prepared once (:func:`prepare_set`) and reused for every parameter set a fit
+tries (:func:`predict`).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from ..analysis.properties import oscillator_strengths, transition_dipoles
+from ..driver import Options, Prepared, ground_scf, model_for, prepare
+from ..errors import PPPError
+from ..model.params import ParameterSet
+from ..solvers import cis as cis_solver
+from ..structure.readers import mol_from_smiles
+from ..units import ev_to_nm
+from .reference import N_SINGLETS, Entry, ReferenceSet, match_state
+
+
+@dataclass(frozen=True)
+class _Singlet:
+    energy_ev: float
+    oscillator_strength: float
+
+
+@dataclass(frozen=True)
+class PreparedEntry:
+    """A reference entry with its prepared chromophores, or the error that stopped preparation."""
+
+    entry: Entry
+    chromophores: tuple[Prepared, ...]
+    error: str | None = None
+
+
+def prepare_set(entries, options: Options = Options(), bond_length: float = 1.40) -> tuple[PreparedEntry, ...]:
+    """Perceive and place every molecule once. Failures are kept with their reason."""
+    out = []
+    for e in entries:
+        try:
+            preps = prepare(mol_from_smiles(e.smiles), options, bond_length)
+            out.append(PreparedEntry(e, preps))
+        except PPPError as err:
+            out.append(PreparedEntry(e, (), str(err.with_molecule(e.name))))
+    return tuple(out)
+
+
+def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets: int = N_SINGLETS):
+    """Lowest singlets (energy eV, f) of every chromophore of one molecule, merged."""
+    states = []
+    for k, prep in enumerate(preps):
+        model, scf = ground_scf(model_for(prep, pset, options), options, k)
+        res = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, n_singlets, 1)
+        if len(res.energies) and res.energies[0] <= 0:
+            continue  # unstable reference: no trustworthy state from this chromophore
+        tdm = transition_dipoles(scf.mo_coeff, model.n_occ, res.amplitudes, model.coords)
+        f = oscillator_strengths(res.energies, tdm)
+        states.extend(_Singlet(float(e), float(x)) for e, x in zip(res.energies, f))
+    return states
+
+
+def predict(pe: PreparedEntry, pset: ParameterSet, options: Options = Options()) -> float | None:
+    """Energy (eV) of the computed state matched to the entry's band, or None (no match / failure)."""
+    if pe.error is not None:
+        return None
+    try:
+        state = match_state(singlets(pe.chromophores, pset, options), pe.entry.match)
+    except PPPError:
+        return None
+    return None if state is None else state.energy_ev
+
+
+@dataclass(frozen=True)
+class ClassError:
+    """Mean absolute errors of one class (or of all rows: ``cls == "all"``)."""
+
+    cls: str
+    n: int
+    n_failed: int
+    mae_ev: float
+    mae_nm: float
+    mean_signed_ev: float  # computed - measured, eV
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Predictions for a reference set under one parameter set and option combination.
+
+    energies : (n,) computed band energies, eV (NaN where no state matched or the run failed)
+    measured : (n,) measured band energies, eV
+    """
+
+    entries: tuple[Entry, ...]
+    energies: np.ndarray
+    measured: np.ndarray
+
+    @property
+    def errors_ev(self) -> np.ndarray:
+        return self.energies - self.measured
+
+    def by_class(self) -> dict[str, ClassError]:
+        """Per-class errors, plus "all" for every row and "hydrocarbon" for the three hydrocarbon classes."""
+        groups: dict[str, list[int]] = {}
+        for k, e in enumerate(self.entries):
+            groups.setdefault(e.cls, []).append(k)
+        hc = [k for k, e in enumerate(self.entries) if e.cls in HYDROCARBON_CLASSES]
+        if hc:
+            groups["hydrocarbon"] = hc
+        groups["all"] = list(range(len(self.entries)))
+        return {cls: self._summary(cls, idx) for cls, idx in groups.items()}
+
+    def _summary(self, cls: str, idx) -> ClassError:
+        idx = np.asarray(idx, dtype=int)
+        e = self.energies[idx]
+        ok = np.isfinite(e)
+        err = e[ok] - self.measured[idx][ok]
+        lam_calc = ev_to_nm(e[ok])
+        lam_exp = np.array([self.entries[k].lambda_nm for k in idx[ok]])
+        nan = float("nan")
+        return ClassError(cls, int(len(idx)), int((~ok).sum()),
+                          float(np.mean(np.abs(err))) if ok.any() else nan,
+                          float(np.mean(np.abs(lam_calc - lam_exp))) if ok.any() else nan,
+                          float(np.mean(err)) if ok.any() else nan)
+
+
+#: Classes that together make up the "hydrocarbon" target group.
+HYDROCARBON_CLASSES = ("polyene", "benzenoid", "non-alternant")
+
+
+def evaluate(prepared, pset: ParameterSet, options: Options = Options()) -> Evaluation:
+    """Predict every prepared entry under one parameter set and options."""
+    energies = np.array([np.nan if (x := predict(pe, pset, options)) is None else x for pe in prepared])
+    measured = np.array([pe.entry.energy_ev for pe in prepared])
+    return Evaluation(tuple(pe.entry for pe in prepared), energies, measured)
+
+
+def evaluate_reference(ref: ReferenceSet, pset: ParameterSet, options: Options = Options()) -> Evaluation:
+    """Prepare and evaluate a whole reference set (convenience)."""
+    return evaluate(prepare_set(ref.entries, replace(options), pset.bond_length_angstrom), pset, options)

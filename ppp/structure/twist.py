@@ -1,0 +1,113 @@
+"""Twisted pi bonds: resonance integrals scaled by the angle between the p-orbital axes, and 3D
+conformers from RDKit for molecules given without coordinates.
+
+For a pi bond between centres i and j with p-orbital axes n_i and n_j (unit vectors),
+
+    beta_ij(theta) = beta_ij(0) |cos theta_ij|,   cos theta_ij = n_i . n_j
+
+the cosine law of the overlap of two p orbitals rotated about their common axis (Mulliken 1949), the
+usual way to treat twisted biaryls and triarylmethane dyes in pi-electron work (common practice). The sign
+of an orbital axis is arbitrary, so the absolute value is taken.
+
+The p axis of a centre is the normal to the plane of its sigma neighbours (heavy atoms; hydrogens are not
+needed): for three neighbours the least-squares plane through them, for two the plane through the centre
+and both. A centre with one heavy neighbour, or collinear neighbours (nitrile, alkyne), has no defined
+axis; bonds to it keep the untwisted beta (factor 1).
+"""
+from __future__ import annotations
+
+import numpy as np
+from rdkit import Chem
+from rdkit.Chem import AllChem
+from rdkit.Chem import rdForceFieldHelpers
+
+from ..errors import InputError
+
+#: Seconds RDKit may spend on one embedding attempt.
+EMBED_TIMEOUT_S = 5
+#: Below this |cross product| (A^2) two neighbour vectors count as collinear.
+_COLLINEAR = 1e-3
+
+
+def p_axis(centre: np.ndarray, neighbours: np.ndarray) -> np.ndarray | None:
+    """Unit p-orbital axis of a centre from its sigma-neighbour positions (k, 3), or None if undefined."""
+    neighbours = np.asarray(neighbours, dtype=float).reshape(-1, 3)
+    if len(neighbours) >= 3:
+        pts = neighbours - neighbours.mean(axis=0)
+        _, s, vt = np.linalg.svd(pts)
+        if s[1] < _COLLINEAR:
+            return None
+        return vt[2] / np.linalg.norm(vt[2])
+    if len(neighbours) == 2:
+        n = np.cross(neighbours[0] - centre, neighbours[1] - centre)
+        norm = np.linalg.norm(n)
+        return None if norm < _COLLINEAR else n / norm
+    return None
+
+
+def twist_factors(mol: Chem.Mol, positions: np.ndarray, atom_indices: np.ndarray,
+                  bonds: np.ndarray) -> np.ndarray:
+    """|cos theta| between the p axes of each bonded pair of centres, (M,).
+
+    Parameters
+    ----------
+    mol : heavy-atom RDKit molecule whose atoms ``positions`` describes
+    positions : (n_atoms, 3) A, 3D coordinates of all atoms of ``mol``
+    atom_indices : (N,) RDKit indices of the chromophore's centres
+    bonds : (M, 2) local index pairs
+    """
+    positions = np.asarray(positions, dtype=float)
+    axes = []
+    for a in atom_indices:
+        atom = mol.GetAtomWithIdx(int(a))
+        nbrs = [nb.GetIdx() for nb in atom.GetNeighbors() if nb.GetAtomicNum() != 1]
+        axes.append(p_axis(positions[int(a)], positions[nbrs]))
+    out = np.ones(len(bonds))
+    for k, (i, j) in enumerate(np.asarray(bonds, dtype=int).reshape(-1, 2)):
+        if axes[i] is not None and axes[j] is not None:
+            out[k] = min(1.0, abs(float(axes[i] @ axes[j])))
+    return out
+
+
+def embed_conformer(mol: Chem.Mol, seed: int = 42) -> tuple[Chem.Mol, str]:
+    """One 3D conformer: RDKit ETKDG embedding (Riniker & Landrum 2015) relaxed with MMFF94
+    (Halgren 1996), or UFF (Rappe et al. 1992) for atoms MMFF does not cover.
+
+    Returns the heavy-atom molecule with a 3D conformer (atom order of ``mol``'s heavy atoms) and the
+    force field used. Raises InputError when embedding fails.
+    """
+    work = Chem.AddHs(Chem.Mol(mol))
+    params = AllChem.ETKDGv3()
+    params.randomSeed = int(seed)
+    params.timeout = EMBED_TIMEOUT_S
+    if AllChem.EmbedMolecule(work, params) != 0:
+        # long all-E polyenes (carotenoids) fail ETKDG's chirality check; embed without it and verify
+        # below that every specified double bond kept its E/Z configuration
+        params.enforceChirality = False
+        if AllChem.EmbedMolecule(work, params) != 0:
+            raise InputError("3D conformer embedding failed (RDKit ETKDG)")
+    if rdForceFieldHelpers.MMFFHasAllMoleculeParams(work):
+        rdForceFieldHelpers.MMFFOptimizeMolecule(work, maxIters=2000)
+        field = "MMFF94"
+    elif rdForceFieldHelpers.UFFHasAllMoleculeParams(work):
+        rdForceFieldHelpers.UFFOptimizeMolecule(work, maxIters=2000)
+        field = "UFF"
+    else:
+        raise InputError("no force field covers every atom; cannot relax a 3D conformer")
+    _check_double_bond_stereo(mol, work)
+    return Chem.RemoveHs(work), field
+
+
+def _check_double_bond_stereo(mol: Chem.Mol, embedded: Chem.Mol) -> None:
+    """Raise InputError if the conformer flipped a specified E/Z double bond."""
+    want = {}
+    for b in mol.GetBonds():
+        if b.GetStereo() in (Chem.BondStereo.STEREOE, Chem.BondStereo.STEREOZ):
+            want[b.GetIdx()] = b.GetStereo()
+    if not want:
+        return
+    got = Chem.Mol(embedded)
+    Chem.AssignStereochemistryFrom3D(got, replaceExistingTags=True)
+    for idx, st in want.items():
+        if got.GetBondWithIdx(idx).GetStereo() != st:
+            raise InputError(f"3D conformer embedding changed the E/Z configuration of bond {idx + 1}")
