@@ -1,0 +1,109 @@
+"""``ppp fit``: recovery of known parameters from synthetic data, cross-validation folds, the written
+parameter file and its provenance, and refusal to overwrite."""
+from __future__ import annotations
+
+import tomllib
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from ppp.calibration import evaluate as ev
+from ppp.calibration import fit as F
+from ppp.calibration.reference import Entry
+from ppp.driver import Options
+from ppp.errors import InputError
+from ppp.model import params
+from ppp.units import ev_to_nm
+
+# small molecules that contain the fitted types (N.amino ip, C-N.amino beta)
+SYNTH = [("trimethine", "CN(C)C=CC=[N+](C)C", "cyanine"), ("pentamethine", "CN(C)C=CC=CC=[N+](C)C", "cyanine"),
+         ("aniline", "Nc1ccccc1", "push-pull"), ("4-aminobenzonitrile", "Nc1ccc(cc1)C#N", "push-pull"),
+         ("4-aminostyrene", "Nc1ccc(cc1)C=C", "push-pull"), ("enamine", "CN(C)C=CC=C", "push-pull"),
+         ("4-nitroaniline", "Nc1ccc(cc1)[N+](=O)[O-]", "push-pull")]
+
+
+def _entries(energies):
+    return [Entry(n, s, c, "synthetic", "first allowed", "allowed", float(ev_to_nm(e)), 1.0, "synthetic")
+            for (n, s, c), e in zip(SYNTH, energies)]
+
+
+def test_fit_recovers_known_parameters_from_synthetic_data():
+    classic = params.load("classic")
+    opts = Options(n_triplets=0)
+    fitted = [F.parse_parameter("ip:N.amino", classic), F.parse_parameter("beta:C-N.amino", classic)]
+    truth = np.array([23.9, -2.65])
+    true_set = F.apply(classic, fitted, truth)
+    prep0 = ev.prepare_set([Entry(n, s, c, "", "", "allowed", 300.0, 1.0, "") for n, s, c in SYNTH], opts)
+    synthetic = [ev.predict(pe, true_set, opts) for pe in prep0]
+    assert all(e is not None for e in synthetic)
+    prepared = ev.prepare_set(_entries(synthetic), opts)
+    res = F.fit(prepared, classic, fitted, opts, prior_scale=0.0, max_nfev=40)
+    assert np.allclose(res.x0, [classic.types["N.amino"].ip_ev, classic.beta[("C", "N.amino")]])
+    assert np.allclose(res.x, truth, atol=0.02), res.x
+    assert np.nanmax(np.abs(res.residuals_ev)) < 2e-3
+
+
+def test_prior_pulls_towards_start_values():
+    classic = params.load("classic")
+    opts = Options(n_triplets=0)
+    p = [F.parse_parameter("ip:N.amino", classic)]
+    prepared = ev.prepare_set(_entries([4.0, 3.0]), opts)[:2]
+    free = F.fit(prepared, classic, p, opts, prior_scale=0.0, max_nfev=20)
+    tight = F.fit(prepared, classic, p, opts, prior_scale=0.01, max_nfev=20)
+    assert abs(tight.x[0] - tight.x0[0]) < abs(free.x[0] - free.x0[0])
+
+
+def test_folds_are_stratified_by_class_and_reproducible():
+    ents = [Entry(f"m{k}", "C=C", cls, "", "", "allowed", 200.0, 1.0, "")
+            for k, cls in enumerate(["a"] * 10 + ["b"] * 5)]
+    prepared = [ev.PreparedEntry(e, ()) for e in ents]
+    f1 = F.folds(prepared, 5, np.random.default_rng(1))
+    f2 = F.folds(prepared, 5, np.random.default_rng(1))
+    assert np.array_equal(f1, f2)
+    for k in range(5):
+        assert np.sum((f1 == k)[:10]) == 2 and np.sum((f1 == k)[10:]) == 1
+
+
+def test_parameter_names_are_checked():
+    classic = params.load("classic")
+    assert F.parse_parameter("beta:N.amino-C", classic).key == "C-N.amino"
+    for bad in ("beta:C-Xe", "ip:Zz", "gamma:C", "ipC"):
+        with pytest.raises(InputError):
+            F.parse_parameter(bad, classic)
+
+
+def test_cli_writes_set_with_provenance_and_refuses_overwrite(tmp_path, cli):
+    csv = tmp_path / "ref.csv"
+    rows = ["name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source",
+            "butadiene,C=CC=C,polyene,hexane,1Bu,allowed,217,3,from memory",
+            "hexatriene,C=C/C=C/C=C,polyene,hexane,1Bu,allowed,258,6,from memory",
+            "octatetraene,C=C/C=C/C=C/C=C,polyene,hexane,1Bu,allowed,290,10,from memory",
+            "decapentaene,C=C/C=C/C=C/C=C/C=C,polyene,hexane,1Bu,allowed,334,10,from memory"]
+    csv.write_text("\n".join(rows) + "\n")
+    out = tmp_path / "mine.toml"
+    code, text, err = cli("fit", csv, "--fit", "beta:C-C", "--folds", "2", "--max-evaluations", "6",
+                          "--bond-order-beta", "on", "-o", out)
+    assert code == 0, err
+    assert "cross-val" in text and "training" in text
+    data = tomllib.loads(out.read_text())
+    prov = data["provenance"]
+    assert prov["reference_sha256"] == F.file_sha256(str(csv))
+    assert prov["fitted"] == ["beta:C-C"] and len(prov["training_residuals_ev"]) == 4
+    assert "all" in prov["cross_validated_mae_ev"] and "all" in data["uncertainty"]["mae_ev"]
+    assert data["bond_order_beta"]["enabled"] is True
+    assert "fitted by ppp fit" in data["beta"]["C-C"]["source"]
+    loaded = params.load(str(out))
+    assert loaded.name == "mine" and loaded.bond_order_beta_enabled
+    before = out.read_bytes()
+    code, _, err = cli("fit", csv, "--fit", "beta:C-C", "-o", out)
+    assert code == 1 and "--overwrite" in err and err.count("\n") == 1
+    assert out.read_bytes() == before
+
+
+def test_cli_rejects_unknown_class(tmp_path, cli):
+    csv = tmp_path / "ref.csv"
+    csv.write_text("name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source\n"
+                   "butadiene,C=CC=C,polyene,hexane,1Bu,allowed,217,3,from memory\n")
+    code, _, err = cli("fit", csv, "--classes", "azo", "-o", tmp_path / "x.toml")
+    assert code == 1 and "not in" in err

@@ -1,0 +1,100 @@
+"""The reference set of measured bands, the band-matching rule, the class rules and band uncertainties."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import pytest
+
+from ppp.calibration import classes, reference
+from ppp.calibration.uncertainty import band_uncertainty, for_result
+from ppp.errors import InputError
+from ppp.model import params
+from ppp.structure.readers import mol_from_smiles
+
+REF = Path(__file__).parent / "data" / "reference_absorption.csv"
+ISSUE_CLASSES = {"polyene", "benzenoid", "non-alternant", "cyanine", "azo", "carbonyl", "coumarin", "xanthene",
+                 "thiophene", "push-pull"}
+
+
+def test_reference_set_is_complete_and_sourced():
+    ref = reference.load(REF)
+    assert len(ref.entries) >= 80
+    assert set(ref.classes) == ISSUE_CLASSES
+    for e in ref.entries:
+        assert e.source.strip() and e.solvent.strip() and e.band.strip()
+        assert 0 < e.uncertainty_nm <= 25
+        mol_from_smiles(e.smiles)  # every structure parses
+        assert "from memory" in e.source or e.source.startswith("cf.")
+    names = [e.name for e in ref.entries]
+    assert len(names) == len(set(names))
+    assert len(ref.sha256) == 64
+
+
+@dataclass(frozen=True)
+class _S:
+    energy_ev: float
+    oscillator_strength: float
+
+
+def test_match_rules_use_computed_states_only():
+    states = [_S(3.0, 0.001), _S(2.5, 0.0), _S(3.5, 0.8), _S(3.2, 0.06)]
+    assert reference.match_state(states, "allowed") == _S(3.2, 0.06)
+    assert reference.match_state(states, "S1") == _S(2.5, 0.0)
+    assert reference.match_state(states, "S2") == _S(3.0, 0.001)
+    assert reference.match_state([_S(3.0, 0.01)], "allowed") is None
+    assert reference.match_state([_S(3.0, 0.01)], "S2") is None
+
+
+@pytest.mark.parametrize("bad,reason", [
+    ("name,smiles\nx,C=C\n", "missing column"),
+    ("name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source\nx,C=C,p,s,b,allowed,abc,3,m\n",
+     "must be numbers"),
+    ("name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source\nx,C=C,p,s,b,brightest,200,3,m\n",
+     "is not one of"),
+    ("name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source\nx,C=C,p,s,b,allowed,200,0,m\n",
+     "must be positive"),
+    ("name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source\n", "holds no rows"),
+])
+def test_bad_reference_files_give_one_line_errors(tmp_path, bad, reason):
+    p = tmp_path / "r.csv"
+    p.write_text(bad)
+    with pytest.raises(InputError, match=reason):
+        reference.load(p)
+    with pytest.raises(InputError, match="does not exist"):
+        reference.load(tmp_path / "missing.csv")
+
+
+def test_class_rules_agree_with_the_reference_labels():
+    # the labels were assigned by a chemist; the structure rules must reproduce nearly all of them
+    ref = reference.load(REF)
+    agree = sum(classes.classify_smiles(e.smiles) == e.cls for e in ref.entries)
+    assert agree >= 0.9 * len(ref.entries)
+
+
+@pytest.mark.parametrize("smiles,cls", [
+    ("c1ccc2ccccc2c1", "benzenoid"), ("c1ccc2cccc2cc1", "non-alternant"), ("C=CC=CC=C", "polyene"),
+    ("CN(C)c1ccc(cc1)/N=N/c1ccccc1", "azo"), ("CN(C)C=CC=[N+](C)C", "cyanine"),
+    ("Nc1ccc(cc1)[N+](=O)[O-]", "push-pull"), ("O=C1C=CC(=O)C=C1", "carbonyl"), ("c1ccsc1", "thiophene"),
+    ("CCO", "other"), ("c1ccncc1", "other"),
+])
+def test_class_rules_on_textbook_cases(smiles, cls):
+    assert classes.classify_smiles(smiles) == cls
+
+
+def test_band_uncertainty_conversion_and_fallback(tmp_path):
+    text = params.load("classic").text.replace('name = "classic"', 'name = "u"').replace(
+        "default = true", "default = false")
+    text += '\n[uncertainty]\nsource = "test"\nmae_ev = { polyene = 0.10, all = 0.25 }\n'
+    p = tmp_path / "u.toml"
+    p.write_text(text)
+    pset = params.load(str(p))
+    u = band_uncertainty(4.0, "polyene", pset)
+    # d(lambda) = lambda dE / E: 309.96 nm * 0.10 / 4.0 = 7.75 nm
+    assert u.cls == "polyene" and u.sigma_nm == pytest.approx(309.96 * 0.1 / 4.0, rel=1e-3)
+    assert band_uncertainty(4.0, "azo", pset).cls == "all"
+    assert band_uncertainty(4.0, "azo", params.load("classic")) is None or params.load("classic").uncertainty
+    import ppp
+    res = ppp.compute("C=CC=CC=C", parameters=str(p), n_triplets=0)
+    assert for_result(res).cls == "polyene"
+    assert "\u00b1" in res.table()

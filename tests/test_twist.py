@@ -1,0 +1,116 @@
+"""Twisted-bond beta (|cos theta| between p axes) and 3D conformers."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from rdkit import Chem
+from rdkit.Geometry import Point3D
+
+import ppp
+from ppp.driver import Options, prepare
+from ppp.errors import InputError
+from ppp.model import params
+from ppp.structure.readers import mol_from_smiles
+from ppp.structure.twist import embed_conformer, p_axis, twist_factors
+from ppp.units import COULOMB_EV_ANGSTROM
+
+
+def test_p_axis_is_plane_normal():
+    c = np.zeros(3)
+    nb = np.array([[1.0, 0, 0], [-0.5, 0.866, 0], [-0.5, -0.866, 0]])
+    assert np.allclose(np.abs(p_axis(c, nb)), [0, 0, 1], atol=1e-12)
+    assert np.allclose(np.abs(p_axis(c, nb[:2])), [0, 0, 1], atol=1e-12)
+    assert p_axis(c, nb[:1]) is None  # one neighbour: undefined
+    assert p_axis(c, np.array([[1.0, 0, 0], [-1.0, 0, 0]])) is None  # linear (nitrile, alkyne)
+
+
+def _tetramethylethylene(theta_deg: float, r_cc: float = 1.34) -> Chem.Mol:
+    """(CH3)2C=C(CH3)2 with the two CMe2 planes twisted by theta about the C=C axis (x)."""
+    mol = Chem.MolFromSmiles("CC(C)=C(C)C")  # atoms: 0 Me, 1 C, 2 Me, 3 C, 4 Me, 5 Me
+    conf = Chem.Conformer(mol.GetNumAtoms())
+    conf.Set3D(True)
+    t = np.radians(theta_deg)
+    x1, x2 = -r_cc / 2, r_cc / 2
+    dx, dy = 0.75, 1.26  # methyls 120 deg from the C=C axis, 1.47 A away
+    pos = {1: (x1, 0, 0), 0: (x1 - dx, dy, 0), 2: (x1 - dx, -dy, 0), 3: (x2, 0, 0),
+           4: (x2 + dx, dy * np.cos(t), dy * np.sin(t)), 5: (x2 + dx, -dy * np.cos(t), -dy * np.sin(t))}
+    # tilt the whole molecule out of the xy plane so that even theta = 0 reads as a 3D structure
+    rot = np.array([[1, 0, 0], [0, np.cos(0.5), -np.sin(0.5)], [0, np.sin(0.5), np.cos(0.5)]]) @ \
+        np.array([[np.cos(0.3), 0, np.sin(0.3)], [0, 1, 0], [-np.sin(0.3), 0, np.cos(0.3)]])
+    for k, xyz in pos.items():
+        x, y, z = rot @ np.array(xyz, dtype=float)
+        conf.SetAtomPosition(k, Point3D(float(x), float(y), float(z)))
+    mol.AddConformer(conf, assignId=True)
+    return mol
+
+
+@pytest.mark.parametrize("theta", [0.0, 30.0, 60.0, 75.0])
+def test_two_centre_twisted_hand_worked_case(theta):
+    # Two pi centres, beta_eff = beta cos(theta) (Mulliken 1949); CIS by hand for a two-centre,
+    # two-electron system: E(S1) = -2 beta_eff + (g11 - g12) / 2 with Mataga-Nishimoto g12 at the
+    # input C=C distance (1.34 A, 3D coordinates are used as given).
+    classic = params.load("classic")
+    b0, u = classic.beta[("C", "C")], classic.types["C"].u_ev
+    g12 = COULOMB_EV_ANGSTROM / (1.34 + COULOMB_EV_ANGSTROM / u)
+    mol = _tetramethylethylene(theta)
+    # beyond about 50 deg the RHF triplet is unstable (E(T1) < 0 by the same formula), so triplets are
+    # only asked for below that
+    n_t = 1 if theta < 45 else 0
+    res = ppp.compute(mol, name="tme", coordinates="input", n_singlets=1, n_triplets=n_t)
+    beta = b0 * np.cos(np.radians(theta))
+    assert res.s1.energy_ev == pytest.approx(-2 * beta + 0.5 * (u - g12), abs=1e-8)
+    if n_t:
+        assert res.t1.energy_ev == pytest.approx(-2 * beta - 0.5 * (u - g12), abs=1e-8)
+
+
+def test_twist_switched_off_reduces_to_fixed_beta():
+    mol = _tetramethylethylene(50.0)
+    off = ppp.compute(mol, name="tme", coordinates="input", twist=False, n_singlets=1, n_triplets=0)
+    flat = ppp.compute(_tetramethylethylene(0.0), name="tme", coordinates="input", n_singlets=1, n_triplets=0)
+    assert off.s1.energy_ev == pytest.approx(flat.s1.energy_ev, abs=1e-10)
+    prep = prepare(mol, Options(coordinates="input", twist=False))
+    assert prep[0].twist is None
+
+
+def test_fully_twisted_bond_is_reported_as_biradical():
+    # at 90 deg beta vanishes: the two-centre system is a biradical, the closed-shell model must refuse
+    from ppp.errors import UnsupportedError
+    with pytest.raises(UnsupportedError, match="biradical"):
+        ppp.compute(_tetramethylethylene(89.0), name="tme", coordinates="input", n_singlets=1, n_triplets=1)
+
+
+def test_twist_factors_follow_dihedral():
+    for theta in (0.0, 45.0, 90.0):
+        mol = _tetramethylethylene(theta)
+        pos = mol.GetConformer().GetPositions()
+        f = twist_factors(mol, pos, np.array([1, 3]), np.array([[0, 1]]))
+        assert f[0] == pytest.approx(abs(np.cos(np.radians(theta))), abs=1e-9)
+
+
+def test_conformer_of_biphenyl_is_twisted_and_blue_shifted():
+    # biphenyl is twisted by roughly 40 deg in the gas phase (electron diffraction, from memory); a
+    # force-field conformer must show a twisted inter-ring bond, and the twist must shorten the band
+    prep = prepare(mol_from_smiles("c1ccc(cc1)-c1ccccc1"), Options(coordinates="conformer"))
+    tw = prep[0].twist
+    angles = np.degrees(np.arccos(tw))
+    assert np.sum(angles > 20) == 1 and 20 < angles.max() < 70
+    assert np.all(angles[angles < 20] < 5)  # ring bonds stay planar
+    planar = ppp.compute("c1ccc(cc1)-c1ccccc1", n_triplets=0).first_bright
+    twisted = ppp.compute("c1ccc(cc1)-c1ccccc1", coordinates="conformer", n_triplets=0).first_bright
+    assert twisted.wavelength_nm < planar.wavelength_nm
+
+
+def test_conformer_keeps_double_bond_configuration_and_is_reproducible():
+    mol = mol_from_smiles("C(=C/c1ccccc1)\\c1ccccc1")
+    a, _ = embed_conformer(mol, seed=7)
+    b, _ = embed_conformer(mol, seed=7)
+    assert np.allclose(a.GetConformer().GetPositions(), b.GetConformer().GetPositions())
+    chk = Chem.Mol(a)
+    Chem.AssignStereochemistryFrom3D(chk)
+    dbl = [bd for bd in chk.GetBonds() if bd.GetBondType() == Chem.BondType.DOUBLE and not bd.GetIsAromatic()]
+    assert str(dbl[0].GetStereo()) == "STEREOE"
+
+
+def test_bad_coordinate_source_is_one_line_error():
+    with pytest.raises(InputError, match="coordinates must be one of"):
+        Options(coordinates="crystal")
