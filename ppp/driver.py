@@ -204,19 +204,21 @@ def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model
     return tuple(out)
 
 
-def ground_scf(model: Model, options: Options = Options(), index: int = 0):
+def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0: np.ndarray | None = None):
     """SCF of one model; with ``model.bond_order_beta`` set, iterated with bond-order betas.
 
+    dens0 : optional (N, N) starting density (e.g. the converged density of a nearby parameter set)
     Returns (model, scf): the model carries the final core Hamiltonian. Raises ConvergenceError.
     """
     if model.bond_order_beta is not None:
         try:
             vb = variable_beta.iterate(model.core, model.gamma, model.n_occ, model.types, model.bonds,
-                                       model.bond_order_beta, scf_solver.kernel, max_iter=options.max_iter)
+                                       model.bond_order_beta, scf_solver.kernel, max_iter=options.max_iter,
+                                       dens0=dens0)
         except ConvergenceError as err:
             raise ConvergenceError(f"chromophore {index + 1} ({model.n_centres} centres): {err.reason}") from None
         return replace(model, core=vb.core), vb.scf
-    scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter)
+    scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter, dens0=dens0)
     if not scf.converged:
         raise ConvergenceError(
             f"SCF did not converge for chromophore {index + 1} ({model.n_centres} centres) after "

@@ -85,6 +85,7 @@ def test_class_rules_on_textbook_cases(smiles, cls):
 def test_band_uncertainty_conversion_and_fallback(tmp_path):
     text = params.load("classic").text.replace('name = "classic"', 'name = "u"').replace(
         "default = true", "default = false")
+    text = text[:text.index("[uncertainty]")] if "[uncertainty]" in text else text
     text += '\n[uncertainty]\nsource = "test"\nmae_ev = { polyene = 0.10, all = 0.25 }\n'
     p = tmp_path / "u.toml"
     p.write_text(text)
@@ -93,7 +94,10 @@ def test_band_uncertainty_conversion_and_fallback(tmp_path):
     # d(lambda) = lambda dE / E: 309.96 nm * 0.10 / 4.0 = 7.75 nm
     assert u.cls == "polyene" and u.sigma_nm == pytest.approx(309.96 * 0.1 / 4.0, rel=1e-3)
     assert band_uncertainty(4.0, "azo", pset).cls == "all"
-    assert band_uncertainty(4.0, "azo", params.load("classic")) is None or params.load("classic").uncertainty
+    assert band_uncertainty(-1.0, "azo", pset) is None
+    bare = tmp_path / "bare.toml"
+    bare.write_text(text[:text.index("[uncertainty]")])
+    assert band_uncertainty(4.0, "azo", params.load(str(bare))) is None
     import ppp
     res = ppp.compute("C=CC=CC=C", parameters=str(p), n_triplets=0)
     assert for_result(res).cls == "polyene"

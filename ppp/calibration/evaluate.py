@@ -47,11 +47,19 @@ def prepare_set(entries, options: Options = Options(), bond_length: float = 1.40
     return tuple(out)
 
 
-def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets: int = N_SINGLETS):
-    """Lowest singlets (energy eV, f) of every chromophore of one molecule, merged."""
+def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets: int = N_SINGLETS,
+             warm: dict | None = None):
+    """Lowest singlets (energy eV, f) of every chromophore of one molecule, merged.
+
+    warm : optional dict keyed by chromophore object id holding the last converged density, used as
+        the SCF starting point and updated (speeds up fits, where parameters change little)
+    """
     states = []
     for k, prep in enumerate(preps):
-        model, scf = ground_scf(model_for(prep, pset, options), options, k)
+        dens0 = warm.get(id(prep)) if warm is not None else None
+        model, scf = ground_scf(model_for(prep, pset, options), options, k, dens0=dens0)
+        if warm is not None:
+            warm[id(prep)] = scf.dens
         res = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, n_singlets, 1)
         if len(res.energies) and res.energies[0] <= 0:
             continue  # unstable reference: no trustworthy state from this chromophore
@@ -61,12 +69,13 @@ def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets
     return states
 
 
-def predict(pe: PreparedEntry, pset: ParameterSet, options: Options = Options()) -> float | None:
+def predict(pe: PreparedEntry, pset: ParameterSet, options: Options = Options(),
+            warm: dict | None = None) -> float | None:
     """Energy (eV) of the computed state matched to the entry's band, or None (no match / failure)."""
     if pe.error is not None:
         return None
     try:
-        state = match_state(singlets(pe.chromophores, pset, options), pe.entry.match)
+        state = match_state(singlets(pe.chromophores, pset, options, warm=warm), pe.entry.match)
     except PPPError:
         return None
     return None if state is None else state.energy_ev

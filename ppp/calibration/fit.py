@@ -172,6 +172,7 @@ def fit(prepared, pset: ParameterSet, params, options: Options = Options(), max_
     keys = [_entry_keys(pe) for pe in prepared]
     touches = np.array([[p.key in k for p in params] for k in keys])
     cache: dict[bytes, np.ndarray] = {}
+    warm: dict = {}  # converged densities of the last evaluation: nearby parameters converge fast
 
     def energies(x, only=None, base=None):
         key = x.tobytes()
@@ -181,7 +182,7 @@ def fit(prepared, pset: ParameterSet, params, options: Options = Options(), max_
         out = np.array(base, copy=True) if base is not None else np.full(len(prepared), np.nan)
         idx = range(len(prepared)) if only is None else np.flatnonzero(only)
         for m in idx:
-            e = predict(prepared[m], trial, options)
+            e = predict(prepared[m], trial, options, warm=warm)
             out[m] = np.nan if e is None else e
         if only is None:
             cache[key] = out
@@ -291,7 +292,7 @@ def write_parameter_file(pset: ParameterSet, result: FitResult, name: str, refer
             entry["ip_ev" if p.kind == "ip" else "u_ev"] = round(float(v), 4)
             entry["source"] = f"{entry.get('source', '')}; {p.kind} {note}"
     if bond_order_beta is not None:
-        table = data.setdefault("bond_order_beta", {"pairs": ["C-C"]})
+        table = data.setdefault("bond_order_beta", default_bond_order_beta_table())
         table["enabled"] = bool(bond_order_beta)
     data["uncertainty"] = {
         "source": f"{uncertainty_kind} mean absolute error per class, {note}",
@@ -318,6 +319,22 @@ def write_parameter_file(pset: ParameterSet, result: FitResult, name: str, refer
     except tomllib.TOMLDecodeError as exc:  # pragma: no cover - tomli_w writes valid TOML
         raise ParameterError(f"internal: written parameter file is not valid TOML: {exc}") from None
     return text
+
+
+def default_bond_order_beta_table() -> dict:
+    """The [bond_order_beta] table of the published scheme in ppp.model.variable_beta, written out."""
+    return {
+        "enabled": False,
+        "pairs": ["C-C"],
+        "length_intercept_angstrom": 1.520,
+        "length_slope_angstrom": 0.186,
+        "reference_length_angstrom": 1.397,
+        "law": "overlap",
+        "slater_exponent": 1.625,
+        "source": ("r = 1.520 - 0.186 p (linearised Coulson 1939 relation, common practice, from memory); "
+                   "beta proportional to the 2p-2p pi Slater overlap (Mulliken 1949; Mulliken, Rieke, "
+                   "Orloff & Orloff 1949), zeta = 1.625 (Slater 1930); r_ref = benzene 1.397 A"),
+    }
 
 
 def _find_beta_key(table: dict, key: str) -> str:

@@ -25,7 +25,7 @@ class BandUncertainty:
     source: str
 
     def __str__(self) -> str:
-        return f"\u00b1 {self.sigma_nm:.0f} nm ({self.cls}, \u00b1{self.sigma_ev:.2f} eV)"
+        return f"\u00b1 {self.sigma_nm:.0f} nm ({self.cls}-class error {self.sigma_ev:.2f} eV)"
 
 
 def band_uncertainty(energy_ev: float, cls: str, pset: param_registry.ParameterSet) -> BandUncertainty | None:

@@ -15,9 +15,20 @@ def add_model_arguments(p) -> None:
                    help="use the coordinates of the MOL/SDF records instead of idealised planar ones")
     g.add_argument("--max-centres", type=int, default=300, metavar="N",
                    help="refuse chromophores with more pi-centres than this (300)")
+    g.add_argument("--bond-order-beta", choices=("on", "off"),
+                   help="beta follows the SCF bond orders (default: the parameter set's choice)")
+    g.add_argument("--conformer", action="store_true",
+                   help="3D coordinates from an RDKit conformer (ETKDG + MMFF94) instead of planar ones")
+    g.add_argument("--no-twist", action="store_true",
+                   help="with 3D coordinates, do not scale beta by the cosine of the p-orbital twist")
 
 
 def options_from(args) -> Options:
+    if args.conformer and args.input_coordinates:
+        from ..errors import InputError
+        raise InputError("--conformer and --input-coordinates exclude each other")
+    coords = "input" if args.input_coordinates else ("conformer" if args.conformer else "depiction")
+    vb = None if args.bond_order_beta is None else args.bond_order_beta == "on"
     return Options(parameters=args.parameters, gamma=args.gamma, n_singlets=args.singlets,
-                   n_triplets=args.triplets, coordinates="input" if args.input_coordinates else "depiction",
-                   max_centres=args.max_centres)
+                   n_triplets=args.triplets, coordinates=coords, max_centres=args.max_centres,
+                   bond_order_beta=vb, twist=not args.no_twist)

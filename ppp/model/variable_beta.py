@@ -121,7 +121,8 @@ class VariableBetaResult:
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.ndarray,
-            settings: BondOrderBeta, scf_kernel, **scf_kwargs) -> VariableBetaResult:
+            settings: BondOrderBeta, scf_kernel, dens0: np.ndarray | None = None,
+            **scf_kwargs) -> VariableBetaResult:
     """Iterate SCF -> bond orders -> lengths -> beta until beta is self-consistent.
 
     Parameters
@@ -130,6 +131,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
         (already multiplied by any twist factor), eV
     gamma : (N, N) eV;  n_occ : doubly occupied orbitals;  types : N type names;  bonds : (M, 2)
     scf_kernel : callable ``(core, gamma, n_occ, dens0=..., **scf_kwargs) -> SCFResult``
+    dens0 : optional starting density; its bond orders also give the starting betas
 
     Raises ConvergenceError when an SCF fails or the cycle does not settle within ``max_cycles``.
     """
@@ -138,8 +140,10 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
     core = np.array(core, dtype=float, copy=True)
     i, j = bonds[mask, 0], bonds[mask, 1]
     beta_ref = core[i, j].copy()
-    dens = None
+    dens = dens0
     lengths = np.full(len(bonds), np.nan)
+    if dens0 is not None and mask.any():  # start from the betas that belong to the given density
+        core[i, j] = core[j, i] = beta_ref * beta_factor(bond_length(dens0[i, j], settings), settings)
     # inner cycles converge the SCF loosely (the betas move anyway); the last SCF uses full tolerance
     loose = dict(scf_kwargs, conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD)
     for cycle in range(1, settings.max_cycles + 1):

@@ -1,0 +1,165 @@
+"""Accuracy benchmark: mean absolute error of predicted band positions against the reference set, per
+chemical class and overall, in eV and nm, for every parameter set and option combination.
+
+    PYTHONPATH=. python benchmarks/accuracy.py                 # all sets, planar and conformer geometry
+    PYTHONPATH=. python benchmarks/accuracy.py --class-fits    # plus per-class ppp fit with k-fold CV
+    PYTHONPATH=. python benchmarks/accuracy.py --quick         # planar geometry only
+
+A set that was fitted to this same reference set (its file has a [provenance] table naming the same
+SHA-256) is marked "training": its figures on the reference set are training errors, and the
+cross-validated errors from its provenance are printed beside them; those are its accuracy.
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+import tomllib
+from concurrent.futures import ProcessPoolExecutor
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+
+from ppp.calibration import evaluate as ev  # noqa: E402
+from ppp.calibration import fit as fitting  # noqa: E402
+from ppp.calibration import reference  # noqa: E402
+from ppp.driver import Options  # noqa: E402
+from ppp.model import params  # noqa: E402
+
+DEFAULT_REF = ROOT / "tests" / "data" / "reference_absorption.csv"
+CLASS_ORDER = ("polyene", "benzenoid", "non-alternant", "hydrocarbon", "cyanine", "azo", "carbonyl", "coumarin",
+               "xanthene", "thiophene", "push-pull", "all")
+
+
+def _run_geometry(args):
+    """Worker: prepare every molecule once for one geometry, then evaluate each (set, bond-order beta)
+    combination on it. Returns plain data (picklable)."""
+    ref_path, coords, combos = args
+    ref = reference.load(ref_path)
+    t0 = time.perf_counter()
+    prep = ev.prepare_set(ref.entries, Options(coordinates=coords), 1.40)
+    t_prep = time.perf_counter() - t0
+    out = []
+    for set_name, vb in combos:
+        pset = params.load(set_name)
+        if pset.bond_length_angstrom != 1.40 and coords == "depiction":
+            prep_s = ev.prepare_set(ref.entries, Options(coordinates=coords), pset.bond_length_angstrom)
+        else:
+            prep_s = prep
+        opts = Options(parameters=set_name, bond_order_beta=vb, coordinates=coords, n_triplets=0)
+        t1 = time.perf_counter()
+        result = ev.evaluate(prep_s, pset, opts)
+        out.append((set_name, vb, coords, result.energies, t_prep, time.perf_counter() - t1))
+    return out
+
+
+def _provenance(pset) -> dict:
+    return tomllib.loads(pset.text).get("provenance", {})
+
+
+def _label(set_name, vb, coords):
+    return f"{set_name} {'bo-beta' if vb else 'fixed-beta'} {'3D+twist' if coords == 'conformer' else 'planar'}"
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--reference", default=str(DEFAULT_REF))
+    ap.add_argument("--sets", help="comma-separated parameter sets (default: all shipped)")
+    ap.add_argument("--quick", action="store_true", help="planar geometry only (no conformer embedding)")
+    ap.add_argument("--class-fits", action="store_true", help="per-class ppp fit with cross-validation")
+    ap.add_argument("--jobs", type=int, default=1, help="worker processes (the machine has 2 cores)")
+    ap.add_argument("--folds", type=int, default=5)
+    args = ap.parse_args(argv)
+
+    ref = reference.load(args.reference)
+    sets = args.sets.split(",") if args.sets else params.available()
+    coords = ("depiction",) if args.quick else ("depiction", "conformer")
+    combos = [(s, vb) for s in sets for vb in (False, True)]
+    jobs = [(args.reference, c, combos) for c in coords]
+    print(f"reference {args.reference} [{ref.sha256[:12]}], {len(ref.entries)} bands, "
+          f"{len(ref.classes)} classes; default set '{params.default_name()}'")
+    t0 = time.perf_counter()
+    if args.jobs > 1:
+        with ProcessPoolExecutor(args.jobs) as pool:
+            results = [r for batch in pool.map(_run_geometry, jobs) for r in batch]
+    else:
+        results = [r for job in jobs for r in _run_geometry(job)]
+    wall = time.perf_counter() - t0
+
+    measured = np.array([e.energy_ev for e in ref.entries])
+    summaries = []
+    for set_name, vb, c, energies, t_prep, t_eval in results:
+        evaluation = ev.Evaluation(ref.entries, energies, measured)
+        pset = params.load(set_name)
+        prov = _provenance(pset)
+        training = prov.get("reference_sha256") == ref.sha256
+        summaries.append((_label(set_name, vb, c), evaluation.by_class(), training, prov, t_prep, t_eval))
+
+    print("\nMean absolute error, eV (nm), per class; n = rows, x = rows without a matched state")
+    head = f"| {'configuration':<34} | " + " | ".join(f"{k:>13}" for k in CLASS_ORDER) + " |"
+    print(head)
+    print("|" + "-" * 36 + "|" + "|".join("-" * 15 for _ in CLASS_ORDER) + "|")
+    counts = None
+    for label, by, training, prov, *_ in summaries:
+        cells = []
+        for k in CLASS_ORDER:
+            s = by.get(k)
+            cells.append(f"{s.mae_ev:.3f} ({s.mae_nm:4.0f})" + ("x" * min(s.n_failed, 1)) if s else "-")
+        tag = " [training]" if training else ""
+        print(f"| {label + tag:<34} | " + " | ".join(f"{c:>13}" for c in cells) + " |")
+        counts = by
+    print("| n rows" + " " * 29 + "| " + " | ".join(f"{counts[k].n:>13}" for k in CLASS_ORDER) + " |")
+    for label, by, training, prov, *_ in summaries:
+        if training and "cross_validated_mae_ev" in prov:
+            cv = prov["cross_validated_mae_ev"]
+            print(f"| {label.split()[0] + ' cross-validated (provenance)':<34} | " +
+                  " | ".join(f"{cv[k]:>13.3f}" if k in cv else f"{'-':>13}" for k in CLASS_ORDER) + " |")
+            break
+    print("\nfailures (unmatched or errors) per configuration:")
+    for label, by, *_ in summaries:
+        print(f"  {label}: {by['all'].n_failed}")
+    print("\ntiming (s): prepare (once per geometry) / evaluate")
+    for label, by, training, prov, t_prep, t_eval in summaries:
+        print(f"  {label:<34} {t_prep:7.1f} {t_eval:7.1f}")
+    print(f"  wall {wall:.1f} s with {args.jobs} worker(s)")
+
+    if args.class_fits:
+        class_fits(ref, args.folds)
+    return 0
+
+
+def class_fits(ref, k_max: int) -> None:
+    """For each class: default-settings error, then ppp fit on the class with k-fold CV."""
+    name = params.default_name()
+    pset = params.load(name)
+    opts = Options(parameters=name, n_triplets=0)
+    print(f"\nPer-class calibration (start: default set '{name}' with its own options); "
+          f"target: cross-validated MAE <= 2/3 of the default's")
+    print(f"| {'class':<14} | {'n':>3} | {'default eV':>10} | {'training eV':>11} | {'CV eV':>7} | "
+          f"{'CV/default':>10} | {'<= 2/3':>6} | fitted")
+    print("|" + "|".join("-" * w for w in (16, 5, 12, 13, 9, 12, 8, 8)) + "|")
+    for cls in ref.classes:
+        prep = tuple(pe for pe in ev.prepare_set(ref.of_class(cls), opts, pset.bond_length_angstrom)
+                     if not pe.error)
+        base = ev.evaluate(prep, pset, opts)
+        default_mae = base.by_class()["all"].mae_ev
+        plist = [fitting.FitParameter("beta", "C-C"), fitting.FitParameter("u", "C")]
+        plist += fitting.default_parameters(prep, pset, min_count=max(2, len(prep) // 4))
+        k = min(k_max, len(prep))
+        t0 = time.perf_counter()
+        res = fitting.fit(prep, pset, plist, opts, max_nfev=15)
+        cv = fitting.cross_validate(prep, pset, plist, opts, k=k, max_nfev=15)
+        meas = np.array([pe.entry.energy_ev for pe in prep])
+        train_mae = float(np.nanmean(np.abs(res.energies - meas)))
+        cv_mae = float(np.nanmean(np.abs(cv.energies - meas)))
+        ratio = cv_mae / default_mae
+        print(f"| {cls:<14} | {len(prep):>3} | {default_mae:10.3f} | {train_mae:11.3f} | {cv_mae:7.3f} | "
+              f"{ratio:10.2f} | {'yes' if ratio <= 2 / 3 else 'no':>6} | "
+              f"{', '.join(p.name for p in plist)} ({time.perf_counter() - t0:.0f} s, {k}-fold)", flush=True)
+
+
+if __name__ == "__main__":
+    sys.exit(main())

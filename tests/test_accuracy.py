@@ -1,0 +1,92 @@
+"""Accuracy against experiment, per chemical class (the figures of benchmarks/accuracy.py).
+
+Targets (issue "accuracy against experiment"): mean absolute error <= 0.20 eV over the whole reference set,
+<= 0.12 eV for hydrocarbons and for cyanines, no class worse than 0.35 eV. Where a target is not met the
+test asserts the bound actually achieved today (so that a regression fails), and the target stays written
+beside it; docs/accuracy.md reports which targets are missed.
+
+Reference: tests/data/reference_absorption.csv (measured band maxima, from memory, see its header).
+"""
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from ppp.calibration import evaluate as ev
+from ppp.calibration import reference
+from ppp.driver import Options
+from ppp.model import params
+
+REF = Path(__file__).parent / "data" / "reference_absorption.csv"
+
+TARGET_EV = {"all": 0.20, "hydrocarbon": 0.12, "cyanine": 0.12, "any class": 0.35}
+
+#: Achieved today by the registry default (classic: textbook values, fixed beta, planar geometry);
+#: recomputed below. Every entry above its target is a missed target (see docs/accuracy.md).
+CLASSIC_BOUND_EV = {"all": 0.30, "hydrocarbon": 0.32, "cyanine": 0.27, "any class": 0.52}
+#: Achieved by classic with bond-order-dependent beta (no value fitted).
+CLASSIC_BO_BOUND_EV = {"all": 0.26, "hydrocarbon": 0.18, "cyanine": 0.27, "any class": 0.44}
+
+
+@pytest.fixture(scope="module")
+def ref():
+    return reference.load(REF)
+
+
+def _errors(ref, set_name, **opts):
+    options = Options(parameters=set_name, n_triplets=0, **opts)
+    pset = params.load(set_name)
+    prepared = ev.prepare_set(ref.entries, options, pset.bond_length_angstrom)
+    return ev.evaluate(prepared, pset, options).by_class()
+
+
+def _check(by, bound):
+    worst = max(v.mae_ev for k, v in by.items() if k not in ("all", "hydrocarbon"))
+    assert by["all"].n_failed == 0
+    assert by["all"].mae_ev <= bound["all"]
+    assert by["hydrocarbon"].mae_ev <= bound["hydrocarbon"]
+    assert by["cyanine"].mae_ev <= bound["cyanine"]
+    assert worst <= bound["any class"]
+    return worst
+
+
+@pytest.fixture(scope="module")
+def classic_errors(ref):
+    return _errors(ref, "classic")
+
+
+def test_default_set_per_class_error(classic_errors):
+    assert params.default_name() == "classic"
+    _check(classic_errors, CLASSIC_BOUND_EV)
+
+
+def test_classic_uncertainty_table_is_its_measured_error(classic_errors):
+    # the figures shown as "±" for the default set must be the errors measured here (to 0.005 eV)
+    table = params.load("classic").uncertainty
+    for cls, val in table.items():
+        assert classic_errors[cls].mae_ev == pytest.approx(val, abs=0.005), cls
+
+
+def test_bond_order_beta_lowers_the_error(ref, classic_errors):
+    by = _errors(ref, "classic", bond_order_beta=True)
+    _check(by, CLASSIC_BO_BOUND_EV)
+    assert by["all"].mae_ev < classic_errors["all"].mae_ev
+    assert by["polyene"].mae_ev < 0.5 * classic_errors["polyene"].mae_ev  # bond alternation of polyenes
+
+
+def test_dye_set_training_error_matches_its_provenance_and_cv_meets_overall_target(ref):
+    # dye was fitted with ppp fit to this reference set: its errors here are training errors and must be
+    # those recorded in its provenance; its accuracy is the cross-validated error recorded beside them
+    dye = params.load("dye")
+    prov = tomllib.loads(dye.text)["provenance"]
+    assert prov["reference_sha256"] == ref.sha256, "reference set changed: refit the dye set"
+    by = _errors(ref, "dye")
+    for cls, val in prov["training_mae_ev"].items():
+        assert by[cls].mae_ev == pytest.approx(val, abs=0.005), cls
+    cv = prov["cross_validated_mae_ev"]
+    assert cv["all"] <= TARGET_EV["all"]
+    assert max(v for k, v in cv.items() if k not in ("all", "hydrocarbon")) <= TARGET_EV["any class"]
+    assert dye.uncertainty["all"] == pytest.approx(cv["all"], abs=1e-4)
