@@ -37,7 +37,8 @@ class Options:
     gamma : "mataga-nishimoto" or "ohno" (None: the parameter set's choice)
     n_singlets, n_triplets : CIS roots per multiplicity
     coordinates : "depiction" (idealised 2D, default), "input" (coordinates of a MOL/SDF record) or
-        "conformer" (RDKit 3D embedding relaxed with MMFF94, seeded by ``conformer_seed``)
+        "conformer" (idealised planar coordinates, with twist angles from an RDKit 3D conformer relaxed
+        with MMFF94, seeded by ``conformer_seed``)
     max_centres : largest chromophore accepted (dense CIS memory grows as N^4)
     max_iter : SCF iterations per attempt
     bond_order_beta : iterate beta with the SCF bond orders (True/False; None: the parameter set's choice)
@@ -274,19 +275,22 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
             raise TooLargeError(
                 f"chromophore {k + 1} has {sys_.n_centres} pi-centres, more than the limit of "
                 f"{options.max_centres}")
-    source, geo = options.coordinates, work
-    if source == "conformer":
+    # 3D structure for the twist factors: the input record's, or an RDKit conformer. A conformer only
+    # supplies the twist angles; the centres keep the idealised planar coordinates (gamma, dipoles),
+    # because force-field bond lengths follow one resonance structure and would break the symmetry of
+    # delocalised dyes (cyanines) through gamma.
+    geo, pos, is3d = work, None, False
+    if options.coordinates == "conformer":
         geo, _ = embed_conformer(work, options.conformer_seed)
-        source = "input"
-    is3d = False
-    if source == "input" and geo.GetNumConformers():
+    if options.coordinates in ("input", "conformer") and geo.GetNumConformers():
         conf = geo.GetConformer()
         pos = np.asarray(conf.GetPositions(), dtype=float)
         is3d = bool(conf.Is3D()) and bool(np.ptp(pos[:, 2]) > 1e-6)
+    source = "depiction" if options.coordinates == "conformer" else options.coordinates
     all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
     out = []
     for sys_ in systems:
-        coords = centre_coordinates(geo, sys_.atom_indices, sys_.bonds, bond_length, source,
+        coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
                                     all_pi_bonds=all_bonds)
         twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
         out.append(Prepared(sys_, coords, twist))

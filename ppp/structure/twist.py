@@ -23,6 +23,8 @@ from rdkit.Chem import rdForceFieldHelpers
 
 from ..errors import InputError
 
+#: Conformers embedded and relaxed; the lowest force-field energy is kept.
+N_CONFORMERS = 8
 #: Seconds RDKit may spend on one embedding attempt.
 EMBED_TIMEOUT_S = 5
 #: Below this |cross product| (A^2) two neighbour vectors count as collinear.
@@ -69,33 +71,43 @@ def twist_factors(mol: Chem.Mol, positions: np.ndarray, atom_indices: np.ndarray
     return out
 
 
-def embed_conformer(mol: Chem.Mol, seed: int = 42) -> tuple[Chem.Mol, str]:
-    """One 3D conformer: RDKit ETKDG embedding (Riniker & Landrum 2015) relaxed with MMFF94
-    (Halgren 1996), or UFF (Rappe et al. 1992) for atoms MMFF does not cover.
+def embed_conformer(mol: Chem.Mol, seed: int = 42, n_conformers: int = N_CONFORMERS) -> tuple[Chem.Mol, str]:
+    """The lowest-energy of ``n_conformers`` 3D conformers: RDKit ETKDG embeddings (Riniker & Landrum
+    2015) each relaxed with MMFF94 (Halgren 1996), or UFF (Rappe et al. 1992) for atoms MMFF does not
+    cover. Taking the force-field minimum over several starts is common practice; a single embedding
+    can stay in a twisted local minimum (seen for polymethine chains).
 
-    Returns the heavy-atom molecule with a 3D conformer (atom order of ``mol``'s heavy atoms) and the
-    force field used. Raises InputError when embedding fails.
+    Returns the heavy-atom molecule with that conformer (atom order of ``mol``'s heavy atoms) and the
+    force field used. Raises InputError when embedding fails or flips a specified E/Z double bond.
     """
     work = Chem.AddHs(Chem.Mol(mol))
     params = AllChem.ETKDGv3()
     params.randomSeed = int(seed)
     params.timeout = EMBED_TIMEOUT_S
-    if AllChem.EmbedMolecule(work, params) != 0:
+    cids = [c for c in AllChem.EmbedMultipleConfs(work, int(n_conformers), params) if c >= 0]
+    if not cids:
         # long all-E polyenes (carotenoids) fail ETKDG's chirality check; embed without it and verify
         # below that every specified double bond kept its E/Z configuration
         params.enforceChirality = False
-        if AllChem.EmbedMolecule(work, params) != 0:
+        cids = [c for c in AllChem.EmbedMultipleConfs(work, int(n_conformers), params) if c >= 0]
+        if not cids:
+            work.RemoveAllConformers()
+            cids = [c for c in [AllChem.EmbedMolecule(work, params)] if c >= 0]
+        if not cids:
             raise InputError("3D conformer embedding failed (RDKit ETKDG)")
     if rdForceFieldHelpers.MMFFHasAllMoleculeParams(work):
-        rdForceFieldHelpers.MMFFOptimizeMolecule(work, maxIters=2000)
+        res = rdForceFieldHelpers.MMFFOptimizeMoleculeConfs(work, maxIters=2000)
         field = "MMFF94"
     elif rdForceFieldHelpers.UFFHasAllMoleculeParams(work):
-        rdForceFieldHelpers.UFFOptimizeMolecule(work, maxIters=2000)
+        res = rdForceFieldHelpers.UFFOptimizeMoleculeConfs(work, maxIters=2000)
         field = "UFF"
     else:
         raise InputError("no force field covers every atom; cannot relax a 3D conformer")
-    _check_double_bond_stereo(mol, work)
-    return Chem.RemoveHs(work), field
+    energies = [e for _, e in res]
+    best = cids[int(np.argmin(energies))]
+    out = Chem.Mol(work, confId=best)
+    _check_double_bond_stereo(mol, out)
+    return Chem.RemoveHs(out), field
 
 
 def _check_double_bond_stereo(mol: Chem.Mol, embedded: Chem.Mol) -> None:
