@@ -114,3 +114,14 @@ def test_conformer_keeps_double_bond_configuration_and_is_reproducible():
 def test_bad_coordinate_source_is_one_line_error():
     with pytest.raises(InputError, match="coordinates must be one of"):
         Options(coordinates="crystal")
+
+
+def test_run_command_options_for_twist_and_bond_order_beta(cli):
+    code, out, err = cli("run", "c1ccc(cc1)-c1ccccc1", "--conformer", "--bond-order-beta", "on",
+                         "--singlets", "3", "--triplets", "0")
+    assert code == 0, err
+    code2, out2, _ = cli("run", "c1ccc(cc1)-c1ccccc1", "--conformer", "--no-twist", "--bond-order-beta", "on",
+                         "--singlets", "3", "--triplets", "0")
+    assert code2 == 0 and out != out2  # the twist changes the states
+    code, _, err = cli("run", "C=C", "--conformer", "--input-coordinates")
+    assert code == 1 and "exclude each other" in err
