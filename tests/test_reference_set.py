@@ -102,3 +102,21 @@ def test_band_uncertainty_conversion_and_fallback(tmp_path):
     res = ppp.compute("C=CC=CC=C", parameters=str(p), n_triplets=0)
     assert for_result(res).cls == "polyene"
     assert "\u00b1" in res.table()
+
+
+def test_json_summary_carries_the_band_uncertainty():
+    import json
+
+    import jsonschema
+
+    import ppp
+    res = ppp.compute("C=CC=CC=C", n_triplets=0)
+    doc = res.to_dict()
+    schema = json.loads((Path(ppp.__file__).parent / "io" / "result.schema.json").read_text())
+    jsonschema.validate(doc, schema)
+    summ = doc["summary"]
+    expect = params.load("classic").uncertainty["polyene"]
+    assert summ["uncertainty_class"] == "polyene"
+    assert summ["first_allowed_uncertainty_ev"] == pytest.approx(expect)
+    lam = summ["first_allowed_nm"]
+    assert summ["first_allowed_uncertainty_nm"] == pytest.approx(lam * expect / (1239.84198 / lam), rel=1e-5)

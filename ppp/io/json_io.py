@@ -71,6 +71,15 @@ def _chromophore(c, parameters, sha) -> dict:
     }
 
 
+def _uncertainty(res, band) -> dict:
+    """Expected error of the first allowed band from its class's measured error (None if unknown)."""
+    from ..calibration.uncertainty import for_result
+    u = for_result(res, band) if band is not None else None
+    return {"first_allowed_uncertainty_nm": u.sigma_nm if u else None,
+            "first_allowed_uncertainty_ev": u.sigma_ev if u else None,
+            "uncertainty_class": u.cls if u else None}
+
+
 def result_to_dict(res) -> dict:
     """Plain-JSON dictionary of a MoleculeResult (see the schema for every field).
 
@@ -101,10 +110,12 @@ def result_to_dict(res) -> dict:
             "brightest_nm": res.lambda_max_nm,
             "homo_ev": [c.homo_ev for c in res.chromophores],
             "lumo_ev": [c.lumo_ev for c in res.chromophores],
+            **_uncertainty(res, b),
         },
         "options": {
             "gamma": res.options.gamma, "n_singlets": res.options.n_singlets,
             "n_triplets": res.options.n_triplets, "coordinates": res.options.coordinates,
+            "bond_order_beta": res.options.bond_order_beta, "twist": res.options.twist,
         },
         "chromophores": chroms,
     }
