@@ -6,7 +6,7 @@ tries (:func:`predict`).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -147,4 +147,4 @@ def evaluate(prepared, pset: ParameterSet, options: Options = Options()) -> Eval
 
 def evaluate_reference(ref: ReferenceSet, pset: ParameterSet, options: Options = Options()) -> Evaluation:
     """Prepare and evaluate a whole reference set (convenience)."""
-    return evaluate(prepare_set(ref.entries, replace(options), pset.bond_length_angstrom), pset, options)
+    return evaluate(prepare_set(ref.entries, options, pset.bond_length_angstrom), pset, options)

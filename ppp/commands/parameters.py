@@ -28,4 +28,14 @@ def main(args) -> int:
     print(f"{'bond':<20} {'beta/eV':>8}")
     for (a, b), v in sorted(s.beta.items()):
         print(f"{a + '-' + b:<20} {v:8.3f}")
+    if s.bond_order_beta is not None:
+        bo = s.bond_order_beta
+        print(f"bond-order beta: {'on' if s.bond_order_beta_enabled else 'off'} by default for "
+              f"{', '.join('-'.join(p) for p in bo.pairs)}; r = {bo.length_intercept} - {bo.length_slope} p A, "
+              f"{bo.law} law, r_ref {bo.reference_length} A")
+    if s.uncertainty:
+        print("band uncertainty (MAE per class, eV): "
+              + ", ".join(f"{k} {v:.2f}" for k, v in s.uncertainty.items()))
+        if s.uncertainty_source:
+            print(f"  from: {s.uncertainty_source}")
     return 0
