@@ -3,7 +3,6 @@ parameter file and its provenance, and refusal to overwrite."""
 from __future__ import annotations
 
 import tomllib
-from dataclasses import replace
 
 import numpy as np
 import pytest
