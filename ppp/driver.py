@@ -97,6 +97,7 @@ class ChromophoreResult:
     triplets: tuple[State, ...]
     singlet_amplitudes: np.ndarray  # (k, n_occ, n_vir)
     triplet_amplitudes: np.ndarray
+    warnings: tuple[str, ...] = ()  # conditions the user must know about (e.g. triplet instability)
 
     @property
     def e_total(self) -> float:
@@ -123,6 +124,13 @@ class MoleculeResult:
     parameters_sha256: str
     options: Options
     chromophores: tuple[ChromophoreResult, ...]
+
+    @property
+    def warnings(self) -> tuple[str, ...]:
+        """Warnings of all chromophores, prefixed with the chromophore number when there are several."""
+        many = len(self.chromophores) > 1
+        return tuple((f"chromophore {c.index + 1}: " if many else "") + w
+                     for c in self.chromophores for w in c.warnings)
 
     @property
     def states(self) -> tuple[State, ...]:
@@ -202,19 +210,25 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
             f"{scf.iterations} iterations (last |FP-PF| = {scf.max_error:.1e} eV); no states reported")
     sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
     trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3)
-    for res, kind in ((sing, "singlet"), (trip, "triplet")):
-        # a non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus
-        # 1967 instability): the molecule has open-shell / biradical character the model cannot describe
-        if len(res.energies) and res.energies[0] <= 0.0:
-            raise UnsupportedError(
-                f"closed-shell ground state of chromophore {index + 1} is unstable (lowest {kind} "
-                f"excitation {res.energies[0]:.3f} eV <= 0): open-shell or biradical character")
+    notes = []
+    # A non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus 1967
+    # instability). Singlet instability: the closed-shell ground state itself is wrong (biradical
+    # character), so the molecule is refused. Triplet instability (common for long polyenes and large
+    # acenes with PPP parameters): the singlets stand, but no triplet energies are reported.
+    if len(sing.energies) and sing.energies[0] <= 0.0:
+        raise UnsupportedError(
+            f"closed-shell ground state of chromophore {index + 1} is unstable (lowest singlet "
+            f"excitation {sing.energies[0]:.3f} eV <= 0): open-shell or biradical character")
+    if len(trip.energies) and trip.energies[0] <= 0.0:
+        notes.append(f"triplet instability of the closed-shell reference (lowest CIS triplet "
+                     f"{trip.energies[0]:.3f} eV <= 0): triplet energies not reported")
+        trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
     return ChromophoreResult(
         index=index,
         atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
         model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
         singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
-        singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes,
+        singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
     )
 
 

@@ -92,3 +92,13 @@ def test_total_energy_includes_core_repulsion():
     c = r.chromophores[0]
     assert np.isclose(c.e_total, c.scf.e_elec + c.model.e_core)
     assert np.isclose(r.to_dict()["scf"]["energy_ev"], c.e_total)
+
+
+def test_triplet_instability_keeps_singlets_and_says_so():
+    # long polyene: RHF triplet instability with MN gamma (common practice: PPP-RHF of long polyenes);
+    # the singlets are still reported, the triplets are not, and the result carries a warning
+    res = ppp.compute("CC(C)=CC=CC(C)=CC=CC=C(C)C=CC=C(C)C=CC=C(C)C")
+    assert res.singlets and not res.triplets
+    assert any("triplet instability" in w for w in res.warnings)
+    assert "triplet instability" in res.table()
+    assert res.to_dict()["warnings"]
