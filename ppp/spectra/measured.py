@@ -216,17 +216,20 @@ def read_csv(path: str | Path) -> MeasuredSpectrum:
         pass
     ix = iy = None
     axis_unit = intensity = None
-    for k, col in enumerate(columns):
-        name, unit = _split_header_token(col)
-        if ix is None:
-            u = _axis_kind(name, unit)
-            if u is not None:
-                ix, axis_unit = k, u
-                continue
-        if iy is None:
-            kind = _intensity_kind(name, unit)
-            if kind is not None:
-                iy, intensity = k, kind
+    try:
+        for k, col in enumerate(columns):
+            name, unit = _split_header_token(col)
+            if ix is None:
+                u = _axis_kind(name, unit)
+                if u is not None:
+                    ix, axis_unit = k, u
+                    continue
+            if iy is None:
+                kind = _intensity_kind(name, unit)
+                if kind is not None:
+                    iy, intensity = k, kind
+    except MeasuredSpectrumError as err:
+        raise MeasuredSpectrumError(f"{src}: {err.reason}") from None
     if ix is None or iy is None:
         missing = "an axis column (wavelength (nm), wavenumber (cm-1) or energy (eV))" if ix is None else \
             "an intensity column (absorbance, epsilon (M-1 cm-1) or log epsilon)"

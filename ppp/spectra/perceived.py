@@ -10,14 +10,16 @@ out of gamut and clipped for the hex code.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
 from ..errors import InputError
 
-#: Wavelength window of the colour calculation, nm (the 1931 observer's tabulated range is 360-830 nm).
-COLOUR_RANGE_NM = (360.0, 830.0)
+#: Wavelength window of the colour calculation, nm: the practice range 360-780 nm of ASTM E308, which
+#: colour-science's default method uses.
+COLOUR_RANGE_NM = (360.0, 780.0)
 #: Default sample: a dilute dye solution in a 1 cm cell (common practice).
 DEFAULT_CONCENTRATION_M = 5e-5
 DEFAULT_PATH_CM = 1.0
@@ -98,7 +100,10 @@ def xyz_of_transmittance(wavelength_nm: np.ndarray, transmittance: np.ndarray) -
     sd = colour.SpectralDistribution(dict(zip(wl.tolist(), t.tolist())), name="transmittance")
     cmfs = colour.MSDS_CMFS[_OBSERVER]
     illuminant = colour.SDS_ILLUMINANTS["D65"]
-    return np.asarray(colour.sd_to_XYZ(sd, cmfs, illuminant), dtype=float)
+    with warnings.catch_warnings():
+        # colour-science announces each (expected) re-sampling of the tables onto the sample's grid
+        warnings.simplefilter("ignore", colour.utilities.ColourRuntimeWarning)
+        return np.asarray(colour.sd_to_XYZ(sd, cmfs, illuminant), dtype=float)
 
 
 def transmittance(epsilon: np.ndarray, concentration_m: float, path_cm: float) -> np.ndarray:
