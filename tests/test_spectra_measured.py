@@ -158,3 +158,17 @@ def test_bad_jcamp_files_give_one_line_errors(tmp_path):
         assert "\n" not in str(err.value)
     with pytest.raises(MeasuredSpectrumError, match="does not exist"):
         read_measured(tmp_path / "missing.jdx")
+
+
+@pytest.mark.parametrize("header,kind", [
+    ("log10(epsilon)", "log"), ("log epsilon", "log"), ("molar absorptivity (L mol-1 cm-1)", "lin"),
+    ("epsilon [M^-1 cm^-1]", "lin"), ("\u03b5 (M\u207b\u00b9 cm\u207b\u00b9)", "lin")])
+def test_csv_intensity_header_variants(tmp_path, header, kind):
+    wl = np.linspace(300, 500, 11)
+    eps = 1e4 * np.exp(-0.5 * ((wl - 400) / 40) ** 2) + 10.0
+    col = np.log10(eps) if kind == "log" else eps
+    p = tmp_path / "v.csv"
+    p.write_text(f"wavelength (nm),{header}\n" + "\n".join(f"{x},{float(y)!r}" for x, y in zip(wl, col)))
+    spec = read_csv(p)
+    assert spec.quantity == "epsilon"
+    assert spec.values[::-1] == pytest.approx(eps, rel=1e-12)

@@ -120,8 +120,9 @@ def main(args) -> int:
           f"{fit.after.pearson:.3f} fitted; cosine {fit.before.cosine:.3f} \u2192 {fit.after.cosine:.3f}")
     if not fit.success:
         print(f"  warning: the least-squares fit did not report convergence: {fit.message}")
-    print(f"  colour of {sample}: measured {c_meas.describe()}")
-    print(f"  {'':>{len('colour of ' + sample) - 2}}fitted   {c_fit.describe()}")
+    print(f"  colour of {sample} (CIE 1931 2\u00b0, D65):")
+    print(f"    measured      {c_meas.describe()}")
+    print(f"    fitted model  {c_fit.describe()}")
     for f in files.values():
         print(f"  wrote {f}")
     return 0

@@ -214,7 +214,7 @@ def _plan_pictures(src: sources.SpectrumSource, state: int | None, prefix: str):
         if k < 0 or abs(c.singlet_energy[k] - target_e) > 1e-9:
             continue
         pic = density.excitation_picture(c.mo_coeff, c.n_occ, c.singlet_amplitudes[k])
-        lab = labels[k_state].replace("/", "-")
+        lab = labels[k_state].replace(":", "-")
         head = f"{src.name}: {labels[k_state]} {HC_EV_NM / target_e:.0f} nm, f = {src.sticks.f[k_state]:.2f}"
         for kind, values, text in (
                 ("transition", pic.transition, "transition density; disc area ~ |value|;\nred: positive, "

@@ -27,7 +27,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.optimize
 
 from ..errors import ConvergenceError, InputError
 from ..units import EV_CM1, HC_EV_NM
@@ -123,6 +122,8 @@ def fit_spectrum(sticks: Sticks, meas: MeasuredSpectrum, shape: LineShape,
                  progression: Progression | None = None, window_ev: tuple[float, float] | None = None,
                  fit_width: bool = True) -> FitResult:
     """Least-squares fit of energy shift, intensity scale and (optionally) band FWHM; see module doc."""
+    import scipy.optimize
+
     e, y, win = _window(meas, window_ev)
     if not np.any(sticks.f > 0):
         raise InputError("all computed oscillator strengths are zero: nothing to fit")

@@ -24,7 +24,6 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.special
 
 from ..errors import InputError
 from ..units import EV_CM1, F_PER_INTEGRATED_EPSILON, cm1_to_ev, ev_to_nm, nm_to_ev
@@ -104,6 +103,8 @@ class LineShape:
         if self.kind == "lorentzian":
             hw = 0.5 * self.fwhm_ev
             return (hw / math.pi) / (x * x + hw * hw)
+        import scipy.special
+
         f_g, f_l = self.voigt_widths()
         # scipy.special.voigt_profile(x, sigma, gamma): sigma = Gaussian std, gamma = Lorentzian HWHM
         return scipy.special.voigt_profile(x, f_g / _GAUSS_FWHM_PER_SIGMA, 0.5 * f_l)
@@ -138,6 +139,8 @@ class Progression:
         Members are kept until the remaining tail weight is below 1e-9 (the weights then sum to one
         within 1e-9).
         """
+        import scipy.special
+
         s = self.huang_rhys
         n_max = int(math.ceil(s + 12.0 * math.sqrt(s) + 12.0))
         n = np.arange(n_max + 1)

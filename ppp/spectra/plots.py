@@ -91,7 +91,7 @@ def _eps_scale(ymax: float) -> tuple[float, str]:
     return 10.0 ** p, f"\u03b5 / 10$^{{{p}}}$ M$^{{-1}}$ cm$^{{-1}}$"
 
 
-def _label_levels(xs: np.ndarray, span: float, min_sep: float = 0.075) -> list[int]:
+def _label_levels(xs: np.ndarray, span: float, min_sep: float = 0.12) -> list[int]:
     """Stacking level for each label so that labels closer than ``min_sep`` of the axis span differ."""
     levels = [0] * len(xs)
     placed: list[tuple[float, int]] = []
@@ -137,7 +137,7 @@ def plot_spectrum(curve, sticks, paths, axis: str = "wavelength", window=None, t
     for k, lvl in zip(order, levels):
         nm = HC_EV_NM / sticks.energy_ev[k]
         ax2.annotate(f"{sticks.labels[k]} {nm:.0f} nm\nf = {sticks.f[k]:.2f}", (xs[k], sticks.f[k]),
-                     xytext=(0, 4 + 24 * lvl), textcoords="offset points", ha="center", va="bottom",
+                     xytext=(0, 4 + 27 * lvl), textcoords="offset points", ha="center", va="bottom",
                      fontsize=7.5, color="#222222", zorder=5,
                      bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.8),
                      arrowprops=dict(arrowstyle="-", color="#999999", lw=0.5) if lvl else None)

@@ -55,12 +55,13 @@ class SpectrumSource:
 
 
 def _sticks_from(chroms: list[tuple[int, np.ndarray, np.ndarray]]) -> Sticks:
-    """Merge per-chromophore singlets (index, energies, f), sorted by energy, labelled S<n>[/chr]."""
+    """Merge per-chromophore singlets (index, energies, f), sorted by energy, labelled S<n>, or c<k>:S<n>
+    (state n of chromophore k) when the molecule has several chromophores."""
     multi = len(chroms) > 1
     rows = []
     for c, e, f in chroms:
         for k, (ek, fk) in enumerate(zip(e, f)):
-            rows.append((float(ek), float(fk), f"S{k + 1}" + (f"/{c + 1}" if multi else "")))
+            rows.append((float(ek), float(fk), (f"c{c + 1}:" if multi else "") + f"S{k + 1}"))
     rows.sort(key=lambda r: r[0])
     if not rows:
         raise InputError("no singlet states to make a spectrum from")
