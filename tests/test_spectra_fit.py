@@ -91,3 +91,12 @@ def test_similarity_definitions():
     same = similarity(a, 3.0 * a + 2.0)
     assert same.pearson == pytest.approx(1.0, abs=1e-12)  # offset and scale do not matter to Pearson
     assert same.cosine < 1.0  # but the offset matters to the cosine
+
+
+def test_hopeless_fit_reports_its_parameters_at_the_limits():
+    # a single narrow band far in the UV cannot describe a visible spectrum: the fit must say so
+    meas = synthetic()
+    fit = fit_spectrum(Sticks([7.5], [0.5]), meas, LineShape("gaussian", 0.3))
+    assert "shift" in fit.at_bounds
+    good = fit_spectrum(STICKS, meas, LineShape("gaussian", 0.3))
+    assert good.at_bounds == ()

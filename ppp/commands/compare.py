@@ -118,6 +118,10 @@ def main(args) -> int:
     print(f"  band FWHM      {width}" + (" (fixed)" if args.fix_width else ""))
     print(f"  rms residual   {fit.rms:.4g}   similarity (Pearson r) {fit.before.pearson:.3f} as computed \u2192 "
           f"{fit.after.pearson:.3f} fitted; cosine {fit.before.cosine:.3f} \u2192 {fit.after.cosine:.3f}")
+    if fit.at_bounds:
+        print(f"  warning: the fit stopped at the limit of {' and '.join(fit.at_bounds)} (shift within "
+              f"\u00b1{fitting.SHIFT_BOUND_EV:g} eV, FWHM {fitting.WIDTH_BOUNDS_EV[0]:g}-{fitting.WIDTH_BOUNDS_EV[1]:g} eV): "
+              "the computed bands do not match this measurement; check the molecule or the fit range")
     if not fit.success:
         print(f"  warning: the least-squares fit did not report convergence: {fit.message}")
     print(f"  colour of {sample} (CIE 1931 2\u00b0, D65):")

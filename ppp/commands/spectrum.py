@@ -164,6 +164,10 @@ def main(args) -> int:
     if peaks:
         print("  maxima in the window:  " + ";  ".join(
             f"{HC_EV_NM / e:.0f} nm ({e:.2f} eV) \u03b5 {eps:,.0f} M\u207b\u00b9cm\u207b\u00b9" for e, eps in peaks[:4]))
+    else:
+        k = int(np.argmax(src.sticks.f))
+        print(f"  no band maximum inside the window; the strongest computed band is {src.sticks.labels[k]} at "
+              f"{HC_EV_NM / src.sticks.energy_ev[k]:.0f} nm (f = {src.sticks.f[k]:.3f}); widen it with --range")
     print(f"  colour at {sample}: {colour.describe()}")
     for f in files.values():
         print(f"  wrote {f}")

@@ -70,6 +70,7 @@ class FitResult:
     message: str
     shape: LineShape
     progression: Progression | None
+    at_bounds: tuple[str, ...] = ()
 
     @property
     def shift_cm1(self) -> float:
@@ -88,7 +89,8 @@ class FitResult:
                 "window_nm": [HC_EV_NM / self.window_ev[1], HC_EV_NM / self.window_ev[0]],
                 "similarity_before": {"cosine": self.before.cosine, "pearson": self.before.pearson},
                 "similarity_after": {"cosine": self.after.cosine, "pearson": self.after.pearson},
-                "line_shape": self.shape.kind, "converged": self.success, "message": self.message}
+                "line_shape": self.shape.kind, "converged": self.success, "message": self.message,
+                "at_bounds": list(self.at_bounds)}
 
 
 def similarity(a: np.ndarray, b: np.ndarray) -> Similarity:
@@ -181,5 +183,10 @@ def fit_spectrum(sticks: Sticks, meas: MeasuredSpectrum, shape: LineShape,
     y_grid = np.interp(grid, meas.energy_ev, meas.values)
     before = similarity(epsilon(grid, sticks, shape, progression), y_grid)
     after = similarity(epsilon(grid, sticks.shifted(shift), shape.with_fwhm(width), progression), y_grid)
+    at_bounds = []
+    if abs(abs(shift) - SHIFT_BOUND_EV) < 1e-6:
+        at_bounds.append("shift")
+    if fit_width and min(abs(width - b) for b in WIDTH_BOUNDS_EV) < 1e-6:
+        at_bounds.append("fwhm")
     return FitResult(shift, scale, width, errs[0], errs[1], errs[2], rms, m_pts, win, before, after,
-                     bool(sol.success), str(sol.message), shape, progression)
+                     bool(sol.success), str(sol.message), shape, progression, tuple(at_bounds))

@@ -174,6 +174,8 @@ def plot_compare(meas, sim_raw, sim_fit, fit, paths, axis: str = "wavelength", t
            f"scale {fit.scale:.3g} \u00b1 {fit.scale_err:.2g}\n"
            f"FWHM {fit.fwhm_ev:.3f} \u00b1 {fit.fwhm_err:.3f} eV\n"
            f"similarity r {fit.before.pearson:.3f} \u2192 {fit.after.pearson:.3f}")
+    if fit.at_bounds:
+        txt += f"\nWARNING: fit at the limit of {' and '.join(fit.at_bounds)}"
     ax.text(0.985, 0.97, txt, transform=ax.transAxes, ha="right", va="top", fontsize=8,
             bbox=dict(boxstyle="round,pad=0.4", fc="white", ec="#bbbbbb", lw=0.6), zorder=6)
     for k, (col, cap) in enumerate(colours):
