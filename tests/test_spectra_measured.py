@@ -172,3 +172,19 @@ def test_csv_intensity_header_variants(tmp_path, header, kind):
     spec = read_csv(p)
     assert spec.quantity == "epsilon"
     assert spec.values[::-1] == pytest.approx(eps, rel=1e-12)
+
+
+def test_jcamp_compressed_difdup_form(tmp_path):
+    # ASDF compression (SQZ first value, DIF differences, DUP repeats; McDonald & Wilks 1988), encoded by
+    # hand: 100 102 105 105 105 | 105 106 107 (the second line repeats the last value as its Y check)
+    p = tmp_path / "dif.jdx"
+    p.write_text("##TITLE=difdup\n##JCAMP-DX=4.24\n##XUNITS=NANOMETERS\n##YUNITS=ABSORBANCE\n##XFACTOR=1.0\n"
+                 "##YFACTOR=0.001\n##FIRSTX=401\n##LASTX=407\n##NPOINTS=7\n##XYDATA=(X++(Y..Y))\n"
+                 "401 A00KL%T\n405 A05JJ\n##END=\n")
+    spec = read_jcamp(p)
+    assert spec.wavelength_nm[::-1] == pytest.approx(np.arange(401.0, 408.0), rel=1e-12)
+    assert spec.values[::-1] == pytest.approx([0.100, 0.102, 0.105, 0.105, 0.105, 0.106, 0.107], rel=1e-12)
+    # a broken Y check (second line does not repeat 105) is a damaged file, refused
+    p.write_text(p.read_text().replace("405 A05JJ", "405 A09JJ"))
+    with pytest.raises(MeasuredSpectrumError, match="damaged"):
+        read_jcamp(p)

@@ -67,7 +67,7 @@ def main(args) -> int:
     raw_eps = lineshapes.epsilon(e, src.sticks, shape, prog)
     lo, hi = fit.window_ev
     inside = (e >= lo) & (e <= hi)
-    raw_scale = fitting._best_scale(raw_eps[inside], meas.values[inside])
+    raw_scale = fitting.best_scale(raw_eps[inside], meas.values[inside])
     raw = raw_scale * raw_eps
     fitted = fit.model(src.sticks, e)
 

@@ -52,9 +52,9 @@ def reference_level(types, ip: np.ndarray, u: np.ndarray) -> tuple[float, str]:
     if "C" in types:
         k = types.index("C")
         value = float(-ip[k] + 0.5 * u[k])
-        return value, f"reference \u2212I_C + \u00bd\u03b3_CC = {value:.2f} eV (neutral-carbon Fock diagonal)"
+        return value, f"reference \u2212I_C + \u00bd\u03b3_CC = {value:.3f} eV (neutral-carbon Fock diagonal)"
     value = float(np.mean(-ip + 0.5 * u))
-    return value, f"reference mean(\u2212I + \u00bd\u03b3_ii) over the centres = {value:.2f} eV"
+    return value, f"reference mean(\u2212I + \u00bd\u03b3_ii) over the centres = {value:.3f} eV"
 
 
 def classify_orbitals(mo_energy: np.ndarray, reference_ev: float,

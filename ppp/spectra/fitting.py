@@ -115,7 +115,7 @@ def _window(meas: MeasuredSpectrum, window_ev: tuple[float, float] | None) -> tu
     return e[keep], y[keep], (lo, hi)
 
 
-def _best_scale(model: np.ndarray, y: np.ndarray) -> float:
+def best_scale(model: np.ndarray, y: np.ndarray) -> float:
     mm = float(model @ model)
     return max(float(model @ y) / mm, 0.0) if mm > 0 else 0.0
 
@@ -143,12 +143,12 @@ def fit_spectrum(sticks: Sticks, meas: MeasuredSpectrum, shape: LineShape,
     for width in widths:
         for shift in np.arange(-2.0, 2.0 + 1e-9, 0.02):
             m = curve(shift, width)
-            s = _best_scale(m, y)
+            s = best_scale(m, y)
             cost = float(np.sum((s * m - y) ** 2))
             if cost < best[0]:
                 best = (cost, float(shift), width)
     _, shift0, width0 = best
-    scale0 = _best_scale(curve(shift0, width0), y)
+    scale0 = best_scale(curve(shift0, width0), y)
     if scale0 <= 0:
         raise ConvergenceError(f"{meas.source}: no positive intensity scale matches the measured spectrum")
     y_norm = float(np.max(np.abs(y)))
