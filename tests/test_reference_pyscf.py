@@ -65,11 +65,16 @@ MOLECULES = {
     "4-nitroaniline (push-pull)": "Nc1ccc(cc1)[N+](=O)[O-]",
     "chlorobenzene": "Clc1ccccc1",
     "benzonitrile": "N#Cc1ccccc1",
+    "Brooker's merocyanine": "CN1C=CC(=CC=C2C=CC(=O)C=C2)C=C1",
+    "crystal violet (cation, 25 centres)": "CN(C)c1ccc(cc1)C(=C1C=CC(C=C1)=[N+](C)C)c1ccc(cc1)N(C)C",
 }
 
+#: A few molecules also run with the Ohno gamma formula (a different gamma matrix for both solvers).
+OHNO = ["benzophenone", "4-aminoazobenzene (push-pull dye)", "thiophene", "phenolate (anion)"]
 
-def _model_and_result(smiles: str):
-    systems = build_models(mol_from_smiles(smiles), Options())
+
+def _model_and_result(smiles: str, gamma: str | None = None):
+    systems = build_models(mol_from_smiles(smiles), Options(gamma=gamma))
     assert len(systems) == 1, f"{smiles}: expected one chromophore, got {len(systems)}"
     model = systems[0][1]
     return model, solve_model(model, Options(n_singlets=N_ROOTS, n_triplets=N_ROOTS))
@@ -163,10 +168,11 @@ def _group_sums(energies: np.ndarray, values: np.ndarray, tol: float = 1e-5):
     return np.array(groups)
 
 
-@pytest.mark.parametrize("name", list(MOLECULES))
-def test_scf_and_cis_match_pyscf(name):
+@pytest.mark.parametrize("name,gamma", [(m, None) for m in MOLECULES] + [(m, "ohno") for m in OHNO])
+def test_scf_and_cis_match_pyscf(name, gamma):
     smiles = MOLECULES[name]
-    model, res = _model_and_result(smiles)
+    model, res = _model_and_result(smiles, gamma)
+    assert model.gamma_formula == (gamma or "mataga-nishimoto")
     assert isinstance(res, ChromophoreResult)
     mf = pyscf_rhf(model)
 
