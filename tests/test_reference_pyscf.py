@@ -5,7 +5,7 @@ exactly the same numbers are handed to PySCF as a custom Hamiltonian in an ortho
 sites with zero-differential-overlap two-electron integrals (ii|jj) = gamma_ij. PySCF's restricted
 Hartree-Fock, its Tamm-Dancoff (CIS) response for singlets and triplets, and its full-CI solver then
 act as the gold standard for ppp's own SCF and CIS (source: PySCF, Sun et al., WIREs Comput. Mol.
-Sci. 8, e1340 (2018); J. Chem. Phys. 153, 024109 (2020)).
+Sci. 8, e1340 (2018); J. Chem. Phys. 153, 024109 (2020); citations from memory).
 
 Everything is passed in eV: PySCF never needs to know the unit of a model Hamiltonian (its energies
 are just the eigenvalues of the matrices it is given), so no conversion enters the comparison.
