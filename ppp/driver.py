@@ -16,6 +16,7 @@ from .model import params as param_registry
 from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
 from .solvers import scf as scf_solver
+from .solvers import stability
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
 from .structure.readers import mol_from_smiles
@@ -209,6 +210,12 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
             f"SCF did not converge for chromophore {index + 1} ({model.n_centres} centres) after "
             f"{scf.iterations} iterations (last |FP-PF| = {scf.max_error:.1e} eV); no states reported")
     sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
+    if len(sing.energies) and sing.energies[0] <= 0.0:
+        # the SCF may sit on a saddle point: follow the instability to a lower closed-shell minimum
+        stable = stability.follow(model.core, model.gamma, model.n_occ, scf, max_iter=options.max_iter)
+        if stable is not None and stable is not scf:
+            scf = stable
+            sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
     trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3)
     notes = []
     # A non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus 1967
@@ -217,8 +224,9 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
     # acenes with PPP parameters): the singlets stand, but no triplet energies are reported.
     if len(sing.energies) and sing.energies[0] <= 0.0:
         raise UnsupportedError(
-            f"closed-shell ground state of chromophore {index + 1} is unstable (lowest singlet "
-            f"excitation {sing.energies[0]:.3f} eV <= 0): open-shell or biradical character")
+            f"closed-shell ground state of chromophore {index + 1} is unstable and no stable closed-shell "
+            f"solution was found (lowest singlet excitation {sing.energies[0]:.3f} eV <= 0): open-shell or "
+            f"biradical character")
     if len(trip.energies) and trip.energies[0] <= 0.0:
         notes.append(f"triplet instability of the closed-shell reference (lowest CIS triplet "
                      f"{trip.energies[0]:.3f} eV <= 0): triplet energies not reported")

@@ -90,8 +90,8 @@ def zdo_eri(gamma: np.ndarray) -> np.ndarray:
     return eri
 
 
-def pyscf_rhf(model):
-    """PySCF restricted HF on the model Hamiltonian (energies in eV)."""
+def pyscf_rhf(model, dm0=None):
+    """PySCF restricted HF on the model Hamiltonian (energies in eV), optionally from density dm0."""
     n = model.n_centres
     mol = gto.M(verbose=0)
     mol.nelectron = int(model.n_electrons)
@@ -106,7 +106,7 @@ def pyscf_rhf(model):
     mf.conv_tol = 1e-12  # energy change, eV
     mf.conv_tol_grad = 1e-9  # orbital gradient, eV; the energy error is quadratic in it
     mf.max_cycle = 200
-    mf.kernel()
+    mf.kernel(dm0)
     assert mf.converged, "PySCF RHF did not converge"
     return mf
 

@@ -81,10 +81,16 @@ def test_unconverged_kernel_result_is_flagged():
     assert r.converged is False and r.max_error > 1e-6
 
 
-def test_unstable_closed_shell_is_refused():
-    # square cyclobutadiene: degenerate HOMO/LUMO, singlet instability of the closed shell (common practice)
-    with pytest.raises(ppp.UnsupportedError, match="unstable"):
-        ppp.compute("C1=CC=C1")
+def test_square_cyclobutadiene_follows_instability_to_lower_solution():
+    # square cyclobutadiene: degenerate HOMO/LUMO; the symmetric closed shell is a saddle point
+    # (common practice); ppp follows it to the lower, bond-alternant closed-shell solution and says
+    # that the triplets are not reported (triplet instability remains)
+    m = model_of("C1=CC=C1")
+    symmetric = scf.kernel(m.core, m.gamma, m.n_occ)
+    res = ppp.compute("C1=CC=C1")
+    c = res.chromophores[0]
+    assert c.scf.e_elec < symmetric.e_elec - 0.1
+    assert res.s1.energy_ev > 0 and not res.triplets and res.warnings
 
 
 def test_total_energy_includes_core_repulsion():

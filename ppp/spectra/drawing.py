@@ -44,9 +44,13 @@ def structure_for_pictures(smiles: str, atom_indices_list, types_list) -> Chem.M
             if i >= mol.GetNumAtoms() or mol.GetAtomWithIdx(int(i)).GetSymbol() != element:
                 raise InputError("stored atom numbering does not match the structure's SMILES; "
                                  "pictures need a record computed from a SMILES")
-    with rdBase.BlockLogs():
-        rdDepictor.SetPreferCoordGen(True)
-        rdDepictor.Compute2DCoords(mol)
+    previous = rdDepictor.GetPreferCoordGen()  # process-wide RDKit switch: restore it afterwards
+    try:
+        with rdBase.BlockLogs():
+            rdDepictor.SetPreferCoordGen(True)
+            rdDepictor.Compute2DCoords(mol)
+    finally:
+        rdDepictor.SetPreferCoordGen(previous)
     return mol
 
 
