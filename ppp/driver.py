@@ -9,6 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 from rdkit import Chem
 
+from .analysis.timings import StageTimer, maybe_stage
 from .analysis.properties import (Configuration, GroundState, dominant_configurations, ground_state,
                                   oscillator_strengths, polarization, transition_dipoles)
 from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
@@ -16,6 +17,8 @@ from .model import params as param_registry
 from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
 from .solvers import scf as scf_solver
+from .solvers.guess import localized_density
+from .solvers.threads import blas_threads_for
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
 from .structure.readers import mol_from_smiles
@@ -23,6 +26,9 @@ from .units import ev_to_nm
 
 #: Oscillator strength above which a singlet counts as a "bright" band.
 BRIGHT_F = 0.01
+#: From this many centres on, the SCF starts from the Kekule structure (ppp.solvers.guess) and falls
+#: back to the core-Hamiltonian start; below, the other way round.
+KEKULE_START_FROM = 60
 
 
 @dataclass(frozen=True)
@@ -33,8 +39,11 @@ class Options:
     gamma : "mataga-nishimoto" or "ohno" (None: the parameter set's choice)
     n_singlets, n_triplets : CIS roots per multiplicity
     coordinates : "depiction" (idealised 2D, default) or "input" (coordinates of a MOL/SDF record)
-    max_centres : largest chromophore accepted (dense CIS memory grows as N^4)
+    max_centres : largest chromophore accepted (time grows as N^3, memory as N^2 with the iterative
+        CIS solver; about a minute and 1.4 GB at 1,000 centres, see docs/performance.md)
     max_iter : SCF iterations per attempt
+    cis_solver : "auto" (dense CIS matrix for small systems, matrix-free Davidson above
+        ``ppp.solvers.cis.DENSE_MAX_CONFIGURATIONS`` configurations), "dense" or "iterative"
     """
 
     parameters: str | None = None
@@ -42,8 +51,9 @@ class Options:
     n_singlets: int = 10
     n_triplets: int = 10
     coordinates: str = "depiction"
-    max_centres: int = 300
+    max_centres: int = 1200
     max_iter: int = 100
+    cis_solver: str = "auto"
 
     def __post_init__(self):
         for name in ("n_singlets", "n_triplets"):
@@ -52,6 +62,9 @@ class Options:
                 raise InputError(f"{name} must be a non-negative whole number, got {val!r}")
         if self.coordinates not in ("depiction", "input"):
             raise InputError(f"coordinates must be 'depiction' or 'input', got {self.coordinates!r}")
+        if self.cis_solver not in cis_solver.SOLVERS:
+            raise InputError(
+                f"unknown CIS solver '{self.cis_solver}'; valid: {', '.join(cis_solver.SOLVERS)}")
         if self.gamma is not None and self.gamma not in param_registry.GAMMA_FORMULAS:
             raise InputError(
                 f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
@@ -193,15 +206,53 @@ def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model
 
 
 def solve_model(model: Model, options: Options = Options(), index: int = 0,
-                atom_indices: np.ndarray | None = None) -> ChromophoreResult:
-    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError."""
-    scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter)
+                atom_indices: np.ndarray | None = None, timer: StageTimer | None = None,
+                dens_guess: np.ndarray | None = None) -> ChromophoreResult:
+    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError.
+
+    timer : optional :class:`~ppp.analysis.timings.StageTimer` that receives the stage times
+    dens_guess : optional Kekule-structure start density (:func:`kekule_guess`), used first from
+        ``KEKULE_START_FROM`` centres on and as a fallback below
+    """
+    with blas_threads_for(model.n_centres):
+        return _solve_model(model, options, index, atom_indices, timer, dens_guess)
+
+
+def kekule_guess(mol: Chem.Mol, system: PiSystem) -> np.ndarray | None:
+    """Start density of one Kekule structure of the chromophore (see :mod:`ppp.solvers.guess`)."""
+    work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+    kek = Chem.Mol(work)
+    try:
+        Chem.Kekulize(kek, clearAromaticFlags=True)
+    except Exception:  # RDKit's KekulizeException; no Kekule structure means no such start
+        return None
+    local = {int(a): k for k, a in enumerate(system.atom_indices)}
+    pairs = []
+    for b in kek.GetBonds():
+        if b.GetBondType() == Chem.BondType.DOUBLE:
+            i, j = local.get(b.GetBeginAtomIdx()), local.get(b.GetEndAtomIdx())
+            if i is not None and j is not None:
+                pairs.append((i, j))
+    dens = localized_density(system.n_pi, np.array(pairs, dtype=int).reshape(-1, 2))
+    if dens is None or abs(np.trace(dens) - system.n_electrons) > 1e-9:
+        return None
+    return dens
+
+
+def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> ChromophoreResult:
+    with maybe_stage(timer, "SCF"):
+        scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter,
+                                alt_dens0=dens_guess, alt_first=model.n_centres >= KEKULE_START_FROM)
     if not scf.converged:
         raise ConvergenceError(
             f"SCF did not converge for chromophore {index + 1} ({model.n_centres} centres) after "
             f"{scf.iterations} iterations (last |FP-PF| = {scf.max_error:.1e} eV); no states reported")
-    sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
-    trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3)
+    with maybe_stage(timer, "CIS singlets"):
+        sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
+                                 solver=options.cis_solver, dipole_coords=model.coords)
+    with maybe_stage(timer, "CIS triplets"):
+        trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3,
+                                 solver=options.cis_solver)
     for res, kind in ((sing, "singlet"), (trip, "triplet")):
         # a non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus
         # 1967 instability): the molecule has open-shell / biradical character the model cannot describe
@@ -209,20 +260,24 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
             raise UnsupportedError(
                 f"closed-shell ground state of chromophore {index + 1} is unstable (lowest {kind} "
                 f"excitation {res.energies[0]:.3f} eV <= 0): open-shell or biradical character")
-    return ChromophoreResult(
-        index=index,
-        atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
-        model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
-        singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
-        singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes,
-    )
+    with maybe_stage(timer, "properties"):
+        return ChromophoreResult(
+            index=index,
+            atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
+            model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
+            singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
+            singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes,
+        )
 
 
-def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiSystem, Model], ...]:
+def build_models(mol: Chem.Mol, options: Options = Options(),
+                 timer: StageTimer | None = None) -> tuple[tuple[PiSystem, Model], ...]:
     """Perceive the pi-systems of a molecule and build one model per chromophore."""
-    pset = param_registry.load(options.parameters)
-    work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
-    systems = perceive(work)
+    with maybe_stage(timer, "parameters"):
+        pset = param_registry.load(options.parameters)
+    with maybe_stage(timer, "perception"):
+        work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+        systems = perceive(work)
     for k, sys_ in enumerate(systems):
         if sys_.n_centres > options.max_centres:
             raise TooLargeError(
@@ -231,17 +286,19 @@ def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiS
     all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
     out = []
     for sys_ in systems:
-        coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, pset.bond_length_angstrom,
-                                    options.coordinates, all_pi_bonds=all_bonds)
+        with maybe_stage(timer, "coordinates"):
+            coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, pset.bond_length_angstrom,
+                                        options.coordinates, all_pi_bonds=all_bonds)
         labels = [f"atom {i + 1} ({e})" for i, e in zip(sys_.atom_indices, sys_.elements)]
-        model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, coords, pset,
-                            options.gamma, atom_labels=labels)
+        with maybe_stage(timer, "model (gamma, h)"):
+            model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, coords, pset,
+                                options.gamma, atom_labels=labels)
         out.append((sys_, model))
     return tuple(out)
 
 
 def compute(structure: str | Chem.Mol, name: str | None = None, options: Options | None = None,
-            **kwargs) -> MoleculeResult:
+            timer: StageTimer | None = None, **kwargs) -> MoleculeResult:
     """Predict the pi->pi* excited states of one molecule.
 
     Parameters
@@ -249,6 +306,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
     structure : SMILES string or RDKit molecule (e.g. from a MOL/SDF record)
     name : label used in output and error messages (default: the SMILES)
     options : :class:`Options`; keyword arguments override its fields, e.g. ``n_singlets=5``
+    timer : optional :class:`~ppp.analysis.timings.StageTimer` collecting wall time per stage
 
     Raises a :class:`~ppp.errors.PPPError` subclass naming the molecule on any failure.
     """
@@ -266,14 +324,19 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
         label = name or (structure.GetProp("_Name") if structure.HasProp("_Name") else "") or "molecule"
         smiles_in = ""
     try:
-        mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
-        if not smiles_in:
-            smiles_in = Chem.MolToSmiles(mol)
-        canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
-        pset = param_registry.load(opts.parameters)
+        with maybe_stage(timer, "parse"):
+            mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
+            if not smiles_in:
+                smiles_in = Chem.MolToSmiles(mol)
+            canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
+        with maybe_stage(timer, "parameters"):
+            pset = param_registry.load(opts.parameters)
         chroms = []
-        for k, (sys_, model) in enumerate(build_models(mol, opts)):
-            chroms.append(solve_model(model, opts, index=k, atom_indices=sys_.atom_indices))
+        for k, (sys_, model) in enumerate(build_models(mol, opts, timer)):
+            with maybe_stage(timer, "perception"):
+                guess = kekule_guess(mol, sys_)
+            chroms.append(solve_model(model, opts, index=k, atom_indices=sys_.atom_indices, timer=timer,
+                                      dens_guess=guess))
     except PPPError as err:
         raise err.with_molecule(label)
     return MoleculeResult(name=label, smiles=smiles_in, canonical_smiles=canonical, parameters=pset.name,
