@@ -41,17 +41,18 @@ def _compiled():
         n = core.shape[0]
         e = 0.0
         for i in range(n):
+            e_row = 0.0  # per-row partial sums keep the rounding of E at ~sqrt(N) eps |E|
             coul = 0.0
             for j in range(n):
                 coul += gamma[i, j] * dens[j, j]
                 if j != i:
                     f = core[i, j] - 0.5 * dens[i, j] * gamma[i, j]
                     fock[i, j] = f
-                    e += dens[i, j] * (core[i, j] + f)
+                    e_row += dens[i, j] * (core[i, j] + f)
             # diagonal: h_ii - 1/2 P_ii gamma_ii + sum_j P_jj gamma_ij  (j = i included in the sum)
             f = core[i, i] - 0.5 * dens[i, i] * gamma[i, i] + coul
             fock[i, i] = f
-            e += dens[i, i] * (core[i, i] + f)
+            e += e_row + dens[i, i] * (core[i, i] + f)
         return 0.5 * e
 
     return fock_energy
@@ -65,6 +66,9 @@ def fock_energy(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray):
     core = np.ascontiguousarray(core, dtype=np.float64)
     gamma = np.ascontiguousarray(gamma, dtype=np.float64)
     dens = np.ascontiguousarray(dens, dtype=np.float64)
+    n = core.shape[0]
+    if core.shape != (n, n) or gamma.shape != (n, n) or dens.shape != (n, n):
+        raise ValueError(f"fock_energy needs three N x N matrices, got {core.shape}, {gamma.shape}, {dens.shape}")
     fock = np.empty_like(core)
     e = _compiled()(core, gamma, dens, fock)
     return fock, float(e)
