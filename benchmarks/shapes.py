@@ -35,27 +35,49 @@ def rhombus(rows: int, cols: int) -> Chem.Mol:
     return benzenoid([(i, j) for i in range(rows) for j in range(cols)])
 
 
-def _hex_centre(i: int, j: int) -> np.ndarray:
-    # pointy-top hexagons in axial coordinates: row i shifted by i/2 hexagon widths
+def armchair_ribbon(rows: int, cols: int = 3) -> Chem.Mol:
+    """Graphene-like ribbon: ``rows`` rows of ``cols`` hexagons, rows shifted alternately by half a
+    hexagon, which gives armchair edges along the long side (rows = 1: an acene; cols = 1: a
+    phenacene). Kekule for cols <= 4 (checked with RDKit up to 11 rows); 2 and 3 hexagons wide it has
+    a stable closed-shell PPP ground state at all lengths tried (S1 and T1 > 0 up to 1,000 centres)."""
+    return benzenoid([(i, j) for i in range(rows) for j in range(cols)], offset_rows=True)
+
+
+def ribbon_with_about(n_centres: int, cols: int = 3) -> Chem.Mol:
+    """Armchair ribbon ``cols`` hexagons wide with about ``n_centres`` carbons: a ribbon of r rows has
+    (2 cols + 2) r + 2 cols of them."""
+    rows = max(1, round((n_centres - 2 * cols) / (2 * cols + 2)))
+    return armchair_ribbon(rows, cols)
+
+
+def _hex_centre(i: int, j: int, offset_rows: bool = False) -> np.ndarray:
+    # pointy-top hexagons; row i shifted by i/2 hexagon widths (parallelogram) or by (i mod 2)/2 (offset)
     w = math.sqrt(3.0) * CC
-    return np.array([w * (j + 0.5 * i), 1.5 * CC * i])
+    shift = 0.5 * (i % 2) if offset_rows else 0.5 * i
+    return np.array([w * (j + shift), 1.5 * CC * i])
 
 
-def benzenoid(cells) -> Chem.Mol:
-    """All-carbon benzenoid from hexagon cells (row, column) in offset coordinates."""
+def _ring_keys(i: int, j: int, offset_rows: bool):
+    c = _hex_centre(i, j, offset_rows)
+    out = []
+    for k in range(6):
+        ang = math.radians(90 + 60 * k)
+        p = c + CC * np.array([math.cos(ang), math.sin(ang)])
+        out.append((round(p[0], 3), round(p[1], 3)))
+    return out
+
+
+def benzenoid(cells, offset_rows: bool = False) -> Chem.Mol:
+    """All-carbon benzenoid from hexagon cells (row, column)."""
     pts = []
     index = {}
     bonds = set()
     for i, j in cells:
-        c = _hex_centre(i, j)
         ring = []
-        for k in range(6):
-            ang = math.radians(90 + 60 * k)
-            p = c + CC * np.array([math.cos(ang), math.sin(ang)])
-            key = (round(p[0], 3), round(p[1], 3))
+        for key in _ring_keys(i, j, offset_rows):
             if key not in index:
                 index[key] = len(pts)
-                pts.append(p)
+                pts.append(np.array(key))
             ring.append(index[key])
         for k in range(6):
             a, b = ring[k], ring[(k + 1) % 6]

@@ -18,7 +18,7 @@ from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
 from .solvers import scf as scf_solver
 from .solvers.guess import localized_density
-from .solvers.threads import blas_threads_for
+from .solvers.threads import blas_threads
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
 from .structure.readers import mol_from_smiles
@@ -44,6 +44,8 @@ class Options:
     max_iter : SCF iterations per attempt
     cis_solver : "auto" (dense CIS matrix for small systems, matrix-free Davidson above
         ``ppp.solvers.cis.DENSE_MAX_CONFIGURATIONS`` configurations), "dense" or "iterative"
+    threads : BLAS threads for one chromophore (1 is fastest on a shared or batch-loaded machine;
+        more may help a single large molecule on an otherwise idle one; see ppp.solvers.threads)
     """
 
     parameters: str | None = None
@@ -54,6 +56,7 @@ class Options:
     max_centres: int = 1200
     max_iter: int = 100
     cis_solver: str = "auto"
+    threads: int = 1
 
     def __post_init__(self):
         for name in ("n_singlets", "n_triplets"):
@@ -62,6 +65,8 @@ class Options:
                 raise InputError(f"{name} must be a non-negative whole number, got {val!r}")
         if self.coordinates not in ("depiction", "input"):
             raise InputError(f"coordinates must be 'depiction' or 'input', got {self.coordinates!r}")
+        if not isinstance(self.threads, int) or self.threads < 1:
+            raise InputError(f"threads must be a whole number >= 1, got {self.threads!r}")
         if self.cis_solver not in cis_solver.SOLVERS:
             raise InputError(
                 f"unknown CIS solver '{self.cis_solver}'; valid: {', '.join(cis_solver.SOLVERS)}")
@@ -214,7 +219,7 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
     dens_guess : optional Kekule-structure start density (:func:`kekule_guess`), used first from
         ``KEKULE_START_FROM`` centres on and as a fallback below
     """
-    with blas_threads_for(model.n_centres):
+    with blas_threads(options.threads):
         return _solve_model(model, options, index, atom_indices, timer, dens_guess)
 
 

@@ -181,3 +181,11 @@ def test_dense_solver_refuses_a_matrix_that_does_not_fit(monkeypatch):
 def test_too_many_centres_is_a_clear_error():
     with pytest.raises(TooLargeError, match="more than the limit of 20"):
         compute("C=C" + "/C=C" * 11, max_centres=20)
+
+
+def test_threads_option_is_checked_and_gives_the_same_result():
+    with pytest.raises(InputError, match="threads"):
+        Options(threads=0)
+    a = compute(AZULENE, threads=1, n_singlets=3, n_triplets=0)
+    b = compute(AZULENE, threads=2, n_singlets=3, n_triplets=0)
+    np.testing.assert_allclose([s.energy_ev for s in a.singlets], [s.energy_ev for s in b.singlets], atol=1e-10)

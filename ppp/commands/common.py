@@ -19,9 +19,12 @@ def add_model_arguments(p) -> None:
     g.add_argument("--cis-solver", choices=SOLVERS, default="auto",
                    help="CIS eigensolver: dense matrix, matrix-free iterative (Davidson), or auto "
                         "(dense for small pi-systems)")
+    g.add_argument("--threads", type=int, default=1, metavar="N",
+                   help="BLAS threads per molecule (1; more can help one large molecule on an idle machine)")
 
 
 def options_from(args) -> Options:
     return Options(parameters=args.parameters, gamma=args.gamma, n_singlets=args.singlets,
                    n_triplets=args.triplets, coordinates="input" if args.input_coordinates else "depiction",
-                   max_centres=args.max_centres, cis_solver=getattr(args, "cis_solver", "auto"))
+                   max_centres=args.max_centres, cis_solver=getattr(args, "cis_solver", "auto"),
+                   threads=getattr(args, "threads", 1))

@@ -72,10 +72,10 @@ def sigma(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ:
         y = (xs.reshape(ms * o, v) @ cv.T).reshape(ms, o, n)  # X C_v^T
         t = np.matmul(co, y)  # T = C_o X C_v^T, (ms, N, N)
         if multiplicity == 1:
-            d = np.einsum("kmm->km", t)  # diag(T)
+            d = np.diagonal(t, axis1=1, axis2=2)  # diag(T), (ms, N)
             g = d @ gamma  # gamma symmetric: g_k = gamma d_k
-            # 2 J(X) = 2 C_o^T diag(g) C_v
-            out[s:s + ms] += 2.0 * np.einsum("mi,km,ma->kia", co, g, cv, optimize=True)
+            # 2 J(X) = 2 C_o^T diag(g) C_v, as one stacked product
+            out[s:s + ms] += 2.0 * np.matmul(co.T, g[:, :, None] * cv[None])
         t *= gamma[None]  # gamma o T
         z = np.matmul(co.T, t)  # C_o^T (gamma o T), (ms, o, N)
         out[s:s + ms] -= (z.reshape(ms * o, n) @ cv).reshape(ms, o, v)  # - K(X)

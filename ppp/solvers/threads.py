@@ -1,20 +1,19 @@
-"""BLAS thread control for small problems.
+"""BLAS thread control.
 
-Threaded BLAS/LAPACK calls on matrices of a few dozen rows cost more in thread hand-off than in
-arithmetic, and on a loaded machine a preempted helper thread turns a 50 microsecond eigensolve into
-milliseconds (measured in ``benchmarks/bench_dye.py``: about ten times slower with two threads than
-with one for N = 26). Small chromophores therefore run single-threaded; large ones keep every thread.
+Threaded BLAS/LAPACK on the matrices of a PPP problem pays badly whenever the machine has other work:
+OpenBLAS threads wait for each other, and a preempted helper thread stalls every call. Measured on
+the 2-core development machine while other jobs ran (``benchmarks/bench_scaling.py`` prints the
+same comparison): a 26 x 26 eigensolve 1.6 ms with two threads against 0.17 ms with one; a
+398-centre ribbon 54 s with two threads against 8 s with one. ppp therefore runs each chromophore with
+one BLAS thread unless asked otherwise (``Options.threads``); throughput comes from running several
+molecules at once (one process per core).
 
-The controller of :mod:`threadpoolctl` is created on first use (it inspects the loaded libraries,
-about 10 ms) and reused; limiting is a context manager, so no global setting outlives the call.
+The :mod:`threadpoolctl` controller is created on first use (it inspects the loaded libraries,
+about 10 ms) and reused; the limit is a context manager, so no setting outlives the call.
 """
 from __future__ import annotations
 
-import contextlib
 from functools import lru_cache
-
-#: Chromophores with fewer centres than this run with one BLAS thread.
-SINGLE_THREAD_BELOW = 150
 
 
 @lru_cache(maxsize=1)
@@ -24,8 +23,6 @@ def _controller():
     return ThreadpoolController()
 
 
-def blas_threads_for(n_centres: int):
-    """Context manager: one BLAS thread for small problems, no change otherwise."""
-    if n_centres >= SINGLE_THREAD_BELOW:
-        return contextlib.nullcontext()
-    return _controller().limit(limits=1, user_api="blas")
+def blas_threads(n_threads: int = 1):
+    """Context manager limiting BLAS (numpy's and scipy's) to ``n_threads`` threads."""
+    return _controller().limit(limits=max(1, int(n_threads)), user_api="blas")
