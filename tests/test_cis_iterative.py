@@ -189,3 +189,29 @@ def test_threads_option_is_checked_and_gives_the_same_result():
     a = compute(AZULENE, threads=1, n_singlets=3, n_triplets=0)
     b = compute(AZULENE, threads=2, n_singlets=3, n_triplets=0)
     np.testing.assert_allclose([s.energy_ev for s in a.singlets], [s.energy_ev for s in b.singlets], atol=1e-10)
+
+
+@pytest.mark.parametrize("smiles", [CORONENE, STILBAZOLIUM])
+@pytest.mark.parametrize("window", [0, 3, 6])
+@pytest.mark.parametrize("multiplicity", [1, 3])
+def test_davidson_variants_equal_dense(smiles, window, multiplicity):
+    """Plain diagonal preconditioner (window 0) and frontier windows smaller than the orbital space
+    (3, 6: the two-level preconditioner with Olsen's correction) all reach the dense roots."""
+    model, res = _model(smiles)
+    o = model.n_occ
+    dense = cis.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, multiplicity, solver="dense")
+    itr = cis_iterative.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, multiplicity, window=window)
+    np.testing.assert_allclose(itr.energies, dense.energies, rtol=0, atol=1e-8)
+    # eigenvectors of non-degenerate roots agree up to sign
+    for lo, hi in _levels(dense.energies):
+        if hi - lo == 1:
+            assert abs(abs(float(np.vdot(itr.amplitudes[lo], dense.amplitudes[lo]))) - 1.0) < 1e-8
+
+
+def test_window_matrix_is_the_dense_matrix_restricted_to_the_window():
+    model, res = _model(STILBAZOLIUM)
+    o = model.n_occ
+    for mult in (1, 3):
+        full = cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, mult)
+        a, flat = cis_iterative.window_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, mult, window=4)
+        np.testing.assert_allclose(a, full[np.ix_(flat, flat)], rtol=0, atol=1e-12)

@@ -64,9 +64,10 @@ def electronic_energy(core: np.ndarray, fock: np.ndarray, dens: np.ndarray) -> f
 
 
 #: From this size on the Fock matrix and energy come from the fused numba kernel
-#: (:func:`ppp.solvers.kernels.fock_energy`); below it from numpy, so that a one-molecule run of a
-#: dye never imports numba (half a second of start-up against a saving of well under a millisecond).
-JIT_MIN_CENTRES = 100
+#: (:func:`ppp.solvers.kernels.fock_energy`, 4-13 times faster than the numpy expression; see
+#: benchmarks/bench_kernels.py); below it from numpy. Importing numba costs 0.5-2 s of start-up, more
+#: than the kernel saves in one small run, so dye-sized molecules never load it.
+JIT_MIN_CENTRES = 400
 
 
 def _fock_energy_numpy(core, gamma, dens):
