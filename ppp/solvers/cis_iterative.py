@@ -133,13 +133,22 @@ def frontier_guess(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarra
                    n_vectors: int, multiplicity: int = 1, window: int = WINDOW) -> np.ndarray:
     """Start vectors: the lowest eigenvectors of :func:`window_matrix`, embedded in the full space.
 
-    Returns (min(n_vectors, window configurations), n_occ * n_vir) orthonormal rows."""
+    When the window holds fewer configurations than ``n_vectors``, unit vectors on the smallest orbital
+    energy gaps outside it complete the set. Returns (min(n_vectors, n_occ n_vir), n_occ n_vir)
+    orthonormal rows."""
     a, flat = window_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity, window)
+    n_vir = mo_coeff.shape[0] - n_occ
+    dim = n_occ * n_vir
+    n_vectors = min(n_vectors, dim)
     m = min(n_vectors, a.shape[0])
     _, vec = scipy.linalg.eigh(a, subset_by_index=[0, m - 1])
-    n_vir = mo_coeff.shape[0] - n_occ
-    out = np.zeros((m, n_occ * n_vir))
-    out[:, flat] = vec.T
+    out = np.zeros((n_vectors, dim))
+    out[:m, flat] = vec.T
+    if n_vectors > m:  # window too small: unit vectors on the lowest orbital-energy gaps outside it
+        de = (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
+        de[flat] = np.inf
+        rest = np.argsort(de, kind="stable")[:n_vectors - m]
+        out[np.arange(m, n_vectors), rest] = 1.0
     return out
 
 
