@@ -103,3 +103,15 @@ def test_timer_accumulates_over_molecules():
     compute("C=CC=CC=C", timer=t)
     assert t.calls["SCF"] == 2 and t.seconds["SCF"] > 0.0
     assert "SCF" in t.report()
+
+
+def test_small_molecule_run_does_not_load_numba():
+    """Start-up stays small: a dye-sized run never imports numba (it loads from
+    ppp.solvers.scf.JIT_MIN_CENTRES centres on)."""
+    import subprocess
+    import sys
+
+    code = ("import sys, ppp.driver as d; d.compute('CN1C=CC(=CC=C2C=CC(=O)C=C2)C=C1'); "
+            "print('numba' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"

@@ -129,21 +129,34 @@ def window_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray
     return a, flat
 
 
+def window_eigen(mo_energy, mo_coeff, gamma, n_occ, multiplicity=1, window=WINDOW):
+    """Eigen-decomposition of :func:`window_matrix`: (eigenvalues, eigenvectors, flat indices)."""
+    a, flat = window_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity, window)
+    lam, u = scipy.linalg.eigh(a)
+    return lam, u, flat
+
+
+def window_size(n_centres: int) -> int:
+    """Frontier window per side: WINDOW at 1,000 centres, shrinking as sqrt(N) below (its set-up,
+    an eigensolve of w^2 x w^2, then stays below the O(N^3) cost of one sigma-vector), at least 6."""
+    return int(max(6, min(WINDOW, round(WINDOW * np.sqrt(n_centres / 1000.0)))))
+
+
 def frontier_guess(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int,
-                   n_vectors: int, multiplicity: int = 1, window: int = WINDOW) -> np.ndarray:
+                   n_vectors: int, multiplicity: int = 1, window: int = WINDOW, eig=None) -> np.ndarray:
     """Start vectors: the lowest eigenvectors of :func:`window_matrix`, embedded in the full space.
 
     When the window holds fewer configurations than ``n_vectors``, unit vectors on the smallest orbital
     energy gaps outside it complete the set. Returns (min(n_vectors, n_occ n_vir), n_occ n_vir)
     orthonormal rows."""
-    a, flat = window_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity, window)
+    lam, u, flat = eig if eig is not None else window_eigen(mo_energy, mo_coeff, gamma, n_occ, multiplicity,
+                                                             window)
     n_vir = mo_coeff.shape[0] - n_occ
     dim = n_occ * n_vir
     n_vectors = min(n_vectors, dim)
-    m = min(n_vectors, a.shape[0])
-    _, vec = scipy.linalg.eigh(a, subset_by_index=[0, m - 1])
+    m = min(n_vectors, lam.shape[0])
     out = np.zeros((n_vectors, dim))
-    out[:m, flat] = vec.T
+    out[:m, flat] = u[:, :m].T
     if n_vectors > m:  # window too small: unit vectors on the lowest orbital-energy gaps outside it
         de = (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
         de[flat] = np.inf
@@ -152,14 +165,14 @@ def frontier_guess(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarra
     return out
 
 
-def window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity=1, window=WINDOW):
+def window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity=1, window=WINDOW, eig=None):
     """Two-level Davidson preconditioner M: the exact CIS matrix (:func:`window_matrix`) on the frontier
     window, the diagonal ``diag`` elsewhere; returned as a function (residuals, Ritz vectors, Ritz
     values) -> corrections. Olsen's correction (Olsen, Jorgensen & Simons 1990),
     t = -(M - theta)^-1 r + eps (M - theta)^-1 x with eps = x.(M - theta)^-1 r / x.(M - theta)^-1 x,
     keeps the accurate window block from handing back the current vector."""
-    a, flat = window_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity, window)
-    lam, u = scipy.linalg.eigh(a)
+    lam, u, flat = eig if eig is not None else window_eigen(mo_energy, mo_coeff, gamma, n_occ, multiplicity,
+                                                             window)
 
     def solve(rows, theta):  # (M - theta)^-1 rows, row by row
         out = np.empty_like(rows)
@@ -306,15 +319,15 @@ def _orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e
 
 def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int, n_states: int,
            multiplicity: int = 1, *, tol: float = CONV_TOL, max_iter: int = 200, seed: int = 20240501,
-           window: int = WINDOW):
+           window: int | None = None):
     """Lowest ``n_states`` CIS roots by the matrix-free Davidson method.
 
     Same arguments and result as :func:`ppp.solvers.cis.kernel` (a ``CISResult``); memory O(N^2)
     per trial vector plus the subspace (a few dozen vectors of n_occ * n_vir numbers).
     ``seed`` fixes the generator of the start-vector admixture (see :func:`davidson`), so results are
     reproducible. ``window``: frontier orbitals per side for the start vectors and the two-level
-    preconditioner (:func:`frontier_guess`, :func:`window_preconditioner`); 0 for unit start vectors
-    and the plain diagonal preconditioner.
+    preconditioner (:func:`frontier_guess`, :func:`window_preconditioner`); None: :func:`window_size`;
+    0 for unit start vectors and the plain diagonal preconditioner.
     """
     from .cis import CISResult
 
@@ -335,10 +348,13 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
             rows.shape[0], -1)
 
     extra = {}
+    if window is None:
+        window = window_size(n)
     if window > 0:
         n_guess = min(o * v, max(2 * k + 2, k + 8))
-        extra = dict(guess=frontier_guess(mo_energy, mo_coeff, gamma, n_occ, n_guess, multiplicity, window),
+        eig = window_eigen(mo_energy, mo_coeff, gamma, n_occ, multiplicity, window)
+        extra = dict(guess=frontier_guess(mo_energy, mo_coeff, gamma, n_occ, n_guess, multiplicity, window, eig),
                      precondition=window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity,
-                                                        window))
+                                                        window, eig))
     w, x, _, _ = davidson(matvec, diag, k, tol=tol, max_iter=max_iter, rng=np.random.default_rng(seed), **extra)
     return CISResult(multiplicity, w, x.reshape(k, o, v))
