@@ -64,9 +64,10 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
 
 #: Solver names accepted by :func:`kernel`.
 SOLVERS = ("auto", "dense", "iterative")
-#: "auto" uses the dense matrix up to this many configurations n_occ * n_vir, Davidson above
-#: (crossover measured by benchmarks/bench_dye.py; the dense matrix is then 8 * 1600^2 B = 20 MB).
-DENSE_MAX_CONFIGURATIONS = 1600
+#: "auto" uses the dense matrix up to this many configurations n_occ * n_vir, Davidson above. Measured
+#: by benchmarks/bench_crossover.py (11 roots, one thread): dense 2x slower at 900 configurations
+#: (60 centres), 2-3x faster at 360-400 (40 centres); the switch sits at about 50 centres.
+DENSE_MAX_CONFIGURATIONS = 625
 #: "dense" refuses matrices above this many bytes (the diagonaliser needs about three times as much).
 DENSE_MAX_BYTES = 2 * 2**30
 #: Roots closer than this (eV) form one degenerate level for :func:`align_degenerate`.

@@ -46,7 +46,7 @@ CONV_TOL = 1e-8
 #: 152 with 48, whose set-up then costs more than it saves).
 WINDOW = 32
 #: Trial vectors pushed through one stacked sigma product (bounds the N^2-sized intermediates).
-CHUNK_BYTES = 256 * 2**20
+CHUNK_BYTES = 64 * 2**20
 
 
 def sigma(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int, x: np.ndarray,
