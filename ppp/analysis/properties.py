@@ -91,21 +91,29 @@ def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: floa
                             max_count: int = 4) -> list[tuple[Configuration, ...]]:
     """For each root, the configurations with weight >= ``min_weight`` (at most ``max_count``),
     largest first. amplitudes: (k, n_occ, n_vir)."""
+    amplitudes = np.asarray(amplitudes)
+    k = amplitudes.shape[0]
+    if k == 0:
+        return []
+    n_vir = amplitudes.shape[2]
+    w = (amplitudes * amplitudes).reshape(k, -1)
+    m = min(max_count, w.shape[1])
+    if w.shape[1] > 4 * m:  # only the largest few are needed: partial selection, O(n) per root
+        top = np.sort(np.argpartition(-w, m - 1, axis=1)[:, :m], axis=1)
+    else:
+        top = np.broadcast_to(np.arange(w.shape[1]), w.shape)
+    vals = np.take_along_axis(w, top, axis=1)
+    # by weight, ties by configuration index (as a stable sort of the whole row would give)
+    order = np.take_along_axis(top, np.argsort(-vals, axis=1, kind="stable"), axis=1)[:, :m]
+    weights = np.take_along_axis(w, order, axis=1)
     out = []
-    for x in amplitudes:
-        w = (x * x).ravel()
-        if w.size > 4 * max_count:  # only the largest few are needed: partial selection, O(n)
-            top = np.argpartition(-w, max_count)[:max_count]
-            order = top[np.lexsort((top, -w[top]))]  # by weight, ties by index (as a stable sort)
-        else:
-            order = np.argsort(-w, kind="stable")[:max_count]
+    for r in range(k):
         confs = []
-        for idx in order:
-            if w[idx] < min_weight and confs:
+        for idx, wt in zip(order[r].tolist(), weights[r].tolist()):
+            if wt < min_weight and confs:
                 break
-            i, a = divmod(int(idx), x.shape[1])
-            confs.append(Configuration(i, n_occ + a, float(w[idx]), orbital_label(i, n_occ),
-                                       orbital_label(n_occ + a, n_occ)))
+            i, a = divmod(idx, n_vir)
+            confs.append(Configuration(i, n_occ + a, wt, orbital_label(i, n_occ), orbital_label(n_occ + a, n_occ)))
         out.append(tuple(confs))
     return out
 

@@ -98,41 +98,54 @@ def commutator(fock: np.ndarray, dens: np.ndarray) -> np.ndarray:
 class _DIIS:
     """Pulay's (1980, 1982) direct inversion in the iterative subspace on the error FP - PF.
 
-    The overlap matrix B_ij = <e_i|e_j> of the stored error vectors is kept and extended by one row
-    per iteration (O(n N^2) work for n stored vectors instead of O(n^2 N^2) for rebuilding it).
+    Fock matrices and error vectors live in preallocated ring buffers, and the overlap matrix
+    B_ij = <e_i|e_j> is extended by one row per iteration (one matrix-vector product, O(n N^2) for n
+    stored vectors, instead of O(n^2 N^2) for rebuilding it); the extrapolation is one more product.
     """
 
     def __init__(self, space: int):
         self.space = space
-        self.focks: list[np.ndarray] = []
-        self.errors: list[np.ndarray] = []
-        self.b = np.zeros((0, 0))
+        self.slots: list[int] = []  # ring-buffer slots in insertion order
+        self._f = self._e = None
+        self._b = np.zeros((space, space))
+
+    @property
+    def focks(self) -> list[np.ndarray]:
+        return [self._f[k] for k in self.slots]
+
+    @property
+    def b(self) -> np.ndarray:
+        """B_ij over the stored vectors in insertion order."""
+        return self._b[np.ix_(self.slots, self.slots)]
 
     def push(self, fock: np.ndarray, err: np.ndarray) -> None:
-        if len(self.focks) == self.space:
-            self.focks.pop(0)
-            self.errors.pop(0)
-            self.b = self.b[1:, 1:]
-        self.focks.append(fock)
-        self.errors.append(err)
-        row = np.array([np.vdot(err, e) for e in self.errors])
-        n = len(self.errors)
-        b = np.empty((n, n))
-        b[:n - 1, :n - 1] = self.b
-        b[n - 1, :] = b[:, n - 1] = row
-        self.b = b
+        if self._f is None:
+            self._f = np.empty((self.space,) + fock.shape)
+            self._e = np.empty((self.space, err.size))
+        if len(self.slots) == self.space:
+            slot = self.slots.pop(0)  # overwrite the oldest
+        else:
+            slot = len(self.slots)
+        self.slots.append(slot)
+        self._f[slot] = fock
+        self._e[slot] = err.ravel()
+        used = np.array(sorted(self.slots))
+        row = self._e[used] @ self._e[slot]
+        self._b[slot, used] = row
+        self._b[used, slot] = row
 
     def extrapolate(self) -> np.ndarray:
-        n = len(self.focks)
+        used = np.array(sorted(self.slots))
+        n = used.size
+        bb = self._b[np.ix_(used, used)]
         a = np.empty((n + 1, n + 1))
-        a[:n, :n] = self.b
+        scale = np.max(np.abs(bb))
+        a[:n, :n] = bb / scale if scale > 0 else bb
         a[-1, :] = a[:, -1] = -1.0
         a[-1, -1] = 0.0
         rhs = np.zeros(n + 1)
         rhs[-1] = -1.0
-        scale = np.max(np.abs(self.b))
-        if scale > 0:
-            a[:n, :n] /= scale
+        last = self._f[self.slots[-1]]
         try:
             coef = np.linalg.solve(a, rhs)
             if not np.all(np.isfinite(coef)) or np.max(np.abs(coef)) > 1e8:
@@ -141,13 +154,11 @@ class _DIIS:
             try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
                 coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
             except np.linalg.LinAlgError:
-                return self.focks[-1]
+                return last
         if not np.all(np.isfinite(coef)):
-            return self.focks[-1]
-        out = coef[0] * self.focks[0]
-        for c, f in zip(coef[1:n], self.focks[1:]):
-            out += c * f
-        return out
+            return last
+        f = self._f[used]
+        return (coef[:n] @ f.reshape(n, -1)).reshape(f.shape[1:])
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
@@ -173,7 +184,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
         f_use = fock
         if diis is not None:
             diis.push(fock, err)
-            if len(diis.focks) >= 2:
+            if len(diis.slots) >= 2:
                 f_use = diis.extrapolate()
         if level_shift:
             f_use = f_use + level_shift * (np.eye(n) - 0.5 * dens)
