@@ -129,15 +129,14 @@ class _DIIS:
         self.slots.append(slot)
         self._f[slot] = fock
         self._e[slot] = err.ravel()
-        used = np.array(sorted(self.slots))
-        row = self._e[used] @ self._e[slot]
-        self._b[slot, used] = row
-        self._b[used, slot] = row
+        n = len(self.slots)  # slots 0..n-1 are in use (filled in order, then overwritten in turn)
+        row = self._e[:n] @ self._e[slot]
+        self._b[slot, :n] = row
+        self._b[:n, slot] = row
 
     def extrapolate(self) -> np.ndarray:
-        used = np.array(sorted(self.slots))
-        n = used.size
-        bb = self._b[np.ix_(used, used)]
+        n = len(self.slots)  # the extrapolation does not depend on the order of the vectors
+        bb = self._b[:n, :n]
         a = np.empty((n + 1, n + 1))
         scale = np.max(np.abs(bb))
         a[:n, :n] = bb / scale if scale > 0 else bb
@@ -157,8 +156,7 @@ class _DIIS:
                 return last
         if not np.all(np.isfinite(coef)):
             return last
-        f = self._f[used]
-        return (coef[:n] @ f.reshape(n, -1)).reshape(f.shape[1:])
+        return (coef[:n] @ self._f[:n].reshape(n, -1)).reshape(self._f.shape[1:])
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
