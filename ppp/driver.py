@@ -275,11 +275,15 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
         )
 
 
-def build_models(mol: Chem.Mol, options: Options = Options(),
-                 timer: StageTimer | None = None) -> tuple[tuple[PiSystem, Model], ...]:
-    """Perceive the pi-systems of a molecule and build one model per chromophore."""
-    with maybe_stage(timer, "parameters"):
-        pset = param_registry.load(options.parameters)
+def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer | None = None,
+                 pset=None) -> tuple[tuple[PiSystem, Model], ...]:
+    """Perceive the pi-systems of a molecule and build one model per chromophore.
+
+    pset : the parameter set if already loaded (saves re-reading it), else from ``options.parameters``.
+    """
+    if pset is None:
+        with maybe_stage(timer, "parameters"):
+            pset = param_registry.load(options.parameters)
     with maybe_stage(timer, "perception"):
         work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
         systems = perceive(work)
@@ -337,7 +341,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
         with maybe_stage(timer, "parameters"):
             pset = param_registry.load(opts.parameters)
         chroms = []
-        for k, (sys_, model) in enumerate(build_models(mol, opts, timer)):
+        for k, (sys_, model) in enumerate(build_models(mol, opts, timer, pset=pset)):
             with maybe_stage(timer, "perception"):
                 guess = kekule_guess(mol, sys_)
             chroms.append(solve_model(model, opts, index=k, atom_indices=sys_.atom_indices, timer=timer,
