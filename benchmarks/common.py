@@ -50,6 +50,24 @@ def best_of(fn, repeat: int = 5, min_time: float = 0.05):
     return best
 
 
+def paired_best(fns, repeat: int = 9, min_time: float = 0.02):
+    """Best (smallest) time of each function, measured in interleaved rounds so that load changes on a
+    shared machine hit all of them alike. Returns a list of seconds per call."""
+    best = [np.inf] * len(fns)
+    for _ in range(repeat):
+        for k, fn in enumerate(fns):
+            n = 0
+            t0 = time.perf_counter()
+            while True:
+                fn()
+                n += 1
+                el = time.perf_counter() - t0
+                if el >= min_time:
+                    break
+            best[k] = min(best[k], el / n)
+    return best
+
+
 def pyscf_same_hamiltonian(model, n_states: int, dm0=None):
     """Closure running PySCF RHF + TDA (singlets and triplets, ``n_states`` each) on the PPP model.
 

@@ -17,7 +17,7 @@ from .model import params as param_registry
 from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
 from .solvers import scf as scf_solver
-from .solvers.guess import localized_density
+from .solvers.guess import kekule_guess
 from .solvers.threads import blas_threads
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
@@ -40,7 +40,7 @@ class Options:
     n_singlets, n_triplets : CIS roots per multiplicity
     coordinates : "depiction" (idealised 2D, default) or "input" (coordinates of a MOL/SDF record)
     max_centres : largest chromophore accepted (time grows as N^3, memory as N^2 with the iterative
-        CIS solver; about a minute and 1.4 GB at 1,000 centres, see docs/performance.md)
+        CIS solver; 30-60 s and under 1 GB at 1,000 centres, see docs/performance.md)
     max_iter : SCF iterations per attempt
     cis_solver : "auto" (dense CIS matrix for small systems, matrix-free Davidson above
         ``ppp.solvers.cis.DENSE_MAX_CONFIGURATIONS`` configurations), "dense" or "iterative"
@@ -221,27 +221,6 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
     """
     with blas_threads(options.threads):
         return _solve_model(model, options, index, atom_indices, timer, dens_guess)
-
-
-def kekule_guess(mol: Chem.Mol, system: PiSystem) -> np.ndarray | None:
-    """Start density of one Kekule structure of the chromophore (see :mod:`ppp.solvers.guess`)."""
-    work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
-    kek = Chem.Mol(work)
-    try:
-        Chem.Kekulize(kek, clearAromaticFlags=True)
-    except Exception:  # RDKit's KekulizeException; no Kekule structure means no such start
-        return None
-    local = {int(a): k for k, a in enumerate(system.atom_indices)}
-    pairs = []
-    for b in kek.GetBonds():
-        if b.GetBondType() == Chem.BondType.DOUBLE:
-            i, j = local.get(b.GetBeginAtomIdx()), local.get(b.GetEndAtomIdx())
-            if i is not None and j is not None:
-                pairs.append((i, j))
-    dens = localized_density(system.n_pi, np.array(pairs, dtype=int).reshape(-1, 2))
-    if dens is None or abs(np.trace(dens) - system.n_electrons) > 1e-9:
-        return None
-    return dens
 
 
 def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> ChromophoreResult:

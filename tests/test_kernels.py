@@ -55,6 +55,8 @@ def test_scf_with_kernel_equals_scf_with_numpy(monkeypatch):
     from ppp.structure.readers import mol_from_smiles
 
     (_, model), = build_models(mol_from_smiles("O=C1C=CC(=O)c2ccccc21"))
+    kernels.warm_up()
+    assert scf.fock_builder(10**6) is kernels.fock_energy
     monkeypatch.setattr(scf, "JIT_MIN_CENTRES", 10**9)
     a = scf.kernel(model.core, model.gamma, model.n_occ)
     monkeypatch.setattr(scf, "JIT_MIN_CENTRES", 1)

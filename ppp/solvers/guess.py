@@ -14,6 +14,7 @@ projector) with the right electron count. This "localised bond orbital" start is
 from __future__ import annotations
 
 import numpy as np
+from rdkit import Chem
 
 
 def localized_density(n_pi: np.ndarray, double_bonds: np.ndarray) -> np.ndarray | None:
@@ -40,5 +41,31 @@ def localized_density(n_pi: np.ndarray, double_bonds: np.ndarray) -> np.ndarray 
     if np.any(partners[single] != 1) or np.any(partners[~single] != 0):
         return None
     if np.any((n_pi != 0) & (n_pi != 1) & (n_pi != 2)):
+        return None
+    return dens
+
+
+def kekule_guess(mol: Chem.Mol, system) -> np.ndarray | None:
+    """Start density of one Kekule structure (RDKit's) of a perceived chromophore, or None.
+
+    mol : the RDKit molecule the chromophore was perceived in (hydrogens are removed the same way
+        as in :func:`ppp.driver.build_models`, so that atom indices match)
+    system : :class:`ppp.structure.perceive.PiSystem` (uses atom_indices, n_pi, n_electrons)
+    """
+    work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+    kek = Chem.Mol(work)
+    try:
+        Chem.Kekulize(kek, clearAromaticFlags=True)
+    except Exception:  # RDKit's KekulizeException; no Kekule structure means no such start
+        return None
+    local = {int(a): k for k, a in enumerate(system.atom_indices)}
+    pairs = []
+    for b in kek.GetBonds():
+        if b.GetBondType() == Chem.BondType.DOUBLE:
+            i, j = local.get(b.GetBeginAtomIdx()), local.get(b.GetEndAtomIdx())
+            if i is not None and j is not None:
+                pairs.append((i, j))
+    dens = localized_density(system.n_pi, np.array(pairs, dtype=int).reshape(-1, 2))
+    if dens is None or abs(np.trace(dens) - system.n_electrons) > 1e-9:
         return None
     return dens

@@ -1,15 +1,15 @@
 """numba kernels for the per-iteration O(N^2) work of the SCF, compiled on first use.
 
-numba is imported only when a kernel is first called, so ``import ppp`` and a one-molecule run that
-never needs a kernel do not pay its start-up (about half a second). Compiled code is cached on disk
-(``cache=True``); the first call in a fresh environment compiles (about a second per kernel).
+numba is imported only when a kernel is first called (or by :func:`warm_up`), so ``import ppp`` and
+a one-molecule run never pay its start-up (1-3 s on the loaded development machine, even with a warm
+cache). Compiled code is cached on disk (``cache=True``). The SCF uses the kernel only when numba is
+already loaded (see ``ppp.solvers.scf.JIT_MIN_CENTRES``).
 
 Each kernel has a plain numpy twin (``*_reference``) that states the same mathematics in the
 obvious way; ``tests/test_kernels.py`` checks them equal on random inputs.
 
-Where they pay off (``benchmarks/bench_kernels.py``): for the small matrices of dye-sized molecules
-the fused loop replaces about ten numpy calls and their temporaries per SCF iteration; for large N
-the O(N^3) eigensolve dominates and the choice hardly matters.
+Measured by ``benchmarks/bench_kernels.py``: 3-10 times faster than the numpy expression per call,
+which is a few per cent of an SCF iteration next to its eigensolve.
 """
 from __future__ import annotations
 
@@ -72,3 +72,9 @@ def fock_energy(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray):
     fock = np.empty_like(core)
     e = _compiled()(core, gamma, dens, fock)
     return fock, float(e)
+
+
+def warm_up() -> None:
+    """Import numba and load (or compile) the kernels now; afterwards the SCF uses them for large
+    systems. For long-running processes that handle many large molecules."""
+    fock_energy(np.eye(2), np.eye(2), np.eye(2))

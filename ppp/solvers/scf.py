@@ -13,6 +13,7 @@ A run that still fails returns ``converged=False``; callers must not use its orb
 """
 from __future__ import annotations
 
+import sys
 from dataclasses import dataclass
 
 import numpy as np
@@ -64,9 +65,11 @@ def electronic_energy(core: np.ndarray, fock: np.ndarray, dens: np.ndarray) -> f
 
 
 #: From this size on the Fock matrix and energy come from the fused numba kernel
-#: (:func:`ppp.solvers.kernels.fock_energy`, 4-13 times faster than the numpy expression; see
-#: benchmarks/bench_kernels.py); below it from numpy. Importing numba costs 0.5-2 s of start-up, more
-#: than the kernel saves in one small run, so dye-sized molecules never load it.
+#: (:func:`ppp.solvers.kernels.fock_energy`, 3-10 times faster than the numpy expression, see
+#: benchmarks/bench_kernels.py) - provided numba is already loaded in the process. Loading it costs
+#: 1-3 s (import and LLVM set-up, even with a warm cache), while the kernel saves 2-10 ms per SCF
+#: iteration at 400-1,000 centres: it pays only in a process that handles many large molecules and
+#: calls :func:`ppp.solvers.kernels.warm_up` once. A one-molecule run never loads numba.
 JIT_MIN_CENTRES = 400
 
 
@@ -76,8 +79,8 @@ def _fock_energy_numpy(core, gamma, dens):
 
 
 def fock_builder(n_centres: int):
-    """Function (core, gamma, dens) -> (F, E) to use for a problem of this size."""
-    if n_centres >= JIT_MIN_CENTRES:
+    """Function (core, gamma, dens) -> (F, E) to use for a problem of this size (see JIT_MIN_CENTRES)."""
+    if n_centres >= JIT_MIN_CENTRES and "numba" in sys.modules:
         from .kernels import fock_energy
         return fock_energy
     return _fock_energy_numpy
