@@ -76,8 +76,9 @@ def pyscf_same_hamiltonian(model, n_states: int, dm0=None):
     (``ao2mo.restore(8, eri, N)``), the PySCF recipe for model Hamiltonians.
     Returns (run, check) where run() does the calculation and check() returns (E_rhf, singlets, triplets).
     """
-    from pyscf import ao2mo, gto, scf, tdscf
+    from pyscf import ao2mo, gto, lib, scf, tdscf
 
+    lib.num_threads(1)  # one thread, as ppp gets: threads only contend on the shared 2-core machine
     n = model.n_centres
     mol = gto.M(verbose=0)
     mol.nelectron = model.n_electrons

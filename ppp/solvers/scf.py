@@ -17,6 +17,7 @@ import sys
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.linalg import lapack as _lapack
 
 #: Default thresholds: energy change (eV) and max |FP - PF| (eV).
 CONV_TOL_ENERGY = 1e-11
@@ -92,6 +93,16 @@ def density(mo_coeff: np.ndarray, n_occ: int) -> np.ndarray:
     return 2.0 * c @ c.T
 
 
+def eigh(mat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Eigenvalues (ascending) and eigenvectors of a symmetric matrix: LAPACK dsyevd called directly
+    (the routine behind numpy.linalg.eigh, without its wrapper: ~10 us less per call, which is a third
+    of the call at N = 12); numpy's routine if LAPACK reports a failure."""
+    w, v, info = _lapack.dsyevd(mat)
+    if info != 0:
+        return np.linalg.eigh(mat)
+    return w, v
+
+
 def commutator(fock: np.ndarray, dens: np.ndarray) -> np.ndarray:
     """SCF error FP - PF (N, N), eV; for symmetric F and P it is FP - (FP)^T: one matrix product."""
     fp = fock @ dens
@@ -149,9 +160,9 @@ class _DIIS:
         rhs[-1] = -1.0
         last = self._f[self.slots[-1]]
         try:
-            coef = np.linalg.solve(a, rhs)
-            if not np.all(np.isfinite(coef)) or np.max(np.abs(coef)) > 1e8:
-                raise np.linalg.LinAlgError("ill-conditioned DIIS system")
+            _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly
+            if info != 0 or not np.all(np.isfinite(coef)) or np.max(np.abs(coef)) > 1e8:
+                raise np.linalg.LinAlgError("singular or ill-conditioned DIIS system")
         except np.linalg.LinAlgError:
             try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
                 coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
@@ -189,7 +200,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
                 f_use = diis.extrapolate()
         if level_shift:
             f_use = f_use + level_shift * (np.eye(n) - 0.5 * dens)
-        _, c = np.linalg.eigh(f_use)
+        _, c = eigh(f_use)
         new = density(c, n_occ)
         dens = (1.0 - damping) * new + damping * dens if damping else new
     return False, max_iter, dens
@@ -223,7 +234,7 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
     if not 0 < n_occ < n:
         raise ValueError(f"n_occ = {n_occ} must lie between 1 and N - 1 = {n - 1}")
     if dens0 is None:
-        _, c0 = np.linalg.eigh(core)
+        _, c0 = eigh(core)
         dens0 = density(c0, n_occ)
     kw = dict(conv_tol=conv_tol, conv_tol_grad=conv_tol_grad)
     starts = [("diis", dens0)]
@@ -256,7 +267,7 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
             total += it
         # the stabilised (shifted, damped) stage only prepares the density; DIIS must confirm it, and
         # the lowest n_occ orbitals of F(P) must reproduce P (no hole below the Fermi level)
-        mo_energy, mo_coeff = np.linalg.eigh(fock_matrix(core, gamma, dens))
+        mo_energy, mo_coeff = eigh(fock_matrix(core, gamma, dens))
         if converged and _is_aufbau(mo_coeff, dens, n_occ):
             break
         converged = False
@@ -264,7 +275,7 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
         # final orbitals from the unshifted Fock matrix; use them to make the returned density exact
         dens = density(mo_coeff, n_occ)
         fock = fock_matrix(core, gamma, dens)
-        mo_energy, mo_coeff = np.linalg.eigh(fock)
+        mo_energy, mo_coeff = eigh(fock)
     else:
         fock = fock_matrix(core, gamma, dens)
     err = commutator(fock, dens)
