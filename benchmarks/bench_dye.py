@@ -44,11 +44,17 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--states", type=int, default=10, help="singlets and triplets per molecule (10)")
     ap.add_argument("--quick", action="store_true", help="fewer repetitions")
+    ap.add_argument("--jit", action="store_true",
+                    help="load the numba kernels first (ppp.solvers.kernels.warm_up), as a batch worker does")
     args = ap.parse_args(argv)
     k = args.states
     rep = 3 if args.quick else 9
     opts = Options(n_singlets=k, n_triplets=k)
-    print(f"# dye-sized molecules, {k} singlets + {k} triplets each; {machine()}")
+    if args.jit:
+        from ppp.solvers.kernels import warm_up
+        warm_up()
+    print(f"# dye-sized molecules, {k} singlets + {k} triplets each, numba kernels "
+          f"{'loaded' if args.jit else 'not loaded'}; {machine()}")
     print(f"{'molecule':<26} {'N':>3} {'ppp solve':>10} {'ppp total':>10} {'PySCF':>9} {'PySCF/ppp':>10} "
           f"{'floor':>8} {'ppp/floor':>10} {'|dE| vs PySCF':>14}")
     speedups, floors = [], []

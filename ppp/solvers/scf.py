@@ -65,13 +65,13 @@ def electronic_energy(core: np.ndarray, fock: np.ndarray, dens: np.ndarray) -> f
     return 0.5 * float(np.vdot(dens, core + fock))
 
 
-#: From this size on the Fock matrix and energy come from the fused numba kernel
-#: (:func:`ppp.solvers.kernels.fock_energy`, 3-10 times faster than the numpy expression, see
-#: benchmarks/bench_kernels.py) - provided numba is already loaded in the process. Loading it costs
-#: 1-3 s (import and LLVM set-up, even with a warm cache), while the kernel saves 2-10 ms per SCF
-#: iteration at 400-1,000 centres: it pays only in a process that handles many large molecules and
-#: calls :func:`ppp.solvers.kernels.warm_up` once. A one-molecule run never loads numba.
-JIT_MIN_CENTRES = 400
+#: The Fock matrix and energy come from the fused numba kernel (:func:`ppp.solvers.kernels.fock_energy`,
+#: 3-10 times faster than the numpy expression at every size, see benchmarks/bench_kernels.py) from
+#: this size on - provided numba is already loaded in the process. Loading it costs 1-3 s (import and
+#: LLVM set-up, even with a warm cache) against savings of 0.03-10 ms per SCF iteration, so it pays
+#: only in a process that handles many molecules and calls :func:`ppp.solvers.kernels.warm_up` once
+#: (a batch worker); a one-molecule run never loads numba.
+JIT_MIN_CENTRES = 1
 
 
 def _fock_energy_numpy(core, gamma, dens):
