@@ -42,7 +42,7 @@ class StageTimer:
             lines.append(f"{name:<22} {sec:9.4f} {share:5.1f}% {self.calls[name]:6d}")
         if wall is not None:
             rest = wall - self.total
-            lines.append(f"{'other (start-up etc.)':<22} {rest:9.4f} {100.0 * rest / total if total > 0 else 0.0:5.1f}%")
+            lines.append(f"{'other (unattributed)':<22} {rest:9.4f} {100.0 * rest / total if total > 0 else 0.0:5.1f}%")
         lines.append(f"{'total':<22} {total:9.4f}")
         return "\n".join(lines)
 
