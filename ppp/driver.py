@@ -40,7 +40,7 @@ class Options:
     n_singlets, n_triplets : CIS roots per multiplicity
     coordinates : "depiction" (idealised 2D, default) or "input" (coordinates of a MOL/SDF record)
     max_centres : largest chromophore accepted (time grows as N^3, memory as N^2 with the iterative
-        CIS solver; 30-60 s and under 1 GB at 1,000 centres, see docs/performance.md)
+        CIS solver: 30-60 s and about 1.1 GB at 1,000 centres, 1.5 GB at 1,200; docs/performance.md)
     max_iter : SCF iterations per attempt
     cis_solver : "auto" (dense CIS matrix for small systems, matrix-free Davidson above
         ``ppp.solvers.cis.DENSE_MAX_CONFIGURATIONS`` configurations), "dense" or "iterative"
