@@ -9,6 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 from rdkit import Chem
 
+from .analysis.timings import StageTimer, maybe_stage
 from .analysis.properties import (Configuration, GroundState, dominant_configurations, ground_state,
                                   oscillator_strengths, polarization, transition_dipoles)
 from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
@@ -17,6 +18,8 @@ from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
 from .solvers import scf as scf_solver
 from .solvers import stability
+from .solvers.guess import kekule_guess
+from .solvers.threads import blas_threads
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
 from .structure.readers import mol_from_smiles
@@ -24,6 +27,9 @@ from .units import ev_to_nm
 
 #: Oscillator strength above which a singlet counts as a "bright" band.
 BRIGHT_F = 0.01
+#: From this many centres on, the SCF starts from the Kekule structure (ppp.solvers.guess) and falls
+#: back to the core-Hamiltonian start; below, the other way round.
+KEKULE_START_FROM = 60
 
 
 @dataclass(frozen=True)
@@ -34,8 +40,13 @@ class Options:
     gamma : "mataga-nishimoto" or "ohno" (None: the parameter set's choice)
     n_singlets, n_triplets : CIS roots per multiplicity
     coordinates : "depiction" (idealised 2D, default) or "input" (coordinates of a MOL/SDF record)
-    max_centres : largest chromophore accepted (dense CIS memory grows as N^4)
+    max_centres : largest chromophore accepted (time grows as N^3, memory as N^2 with the iterative
+        CIS solver: 30-60 s and about 1.1 GB at 1,000 centres, 1.5 GB at 1,200; docs/performance.md)
     max_iter : SCF iterations per attempt
+    cis_solver : "auto" (dense CIS matrix for small systems, matrix-free Davidson above
+        ``ppp.solvers.cis.DENSE_MAX_CONFIGURATIONS`` configurations), "dense" or "iterative"
+    threads : BLAS threads for one chromophore (1 is fastest on a shared or batch-loaded machine;
+        more may help a single large molecule on an otherwise idle one; see ppp.solvers.threads)
     """
 
     parameters: str | None = None
@@ -43,8 +54,10 @@ class Options:
     n_singlets: int = 10
     n_triplets: int = 10
     coordinates: str = "depiction"
-    max_centres: int = 300
+    max_centres: int = 1200
     max_iter: int = 100
+    cis_solver: str = "auto"
+    threads: int = 1
 
     def __post_init__(self):
         for name in ("n_singlets", "n_triplets"):
@@ -53,6 +66,11 @@ class Options:
                 raise InputError(f"{name} must be a non-negative whole number, got {val!r}")
         if self.coordinates not in ("depiction", "input"):
             raise InputError(f"coordinates must be 'depiction' or 'input', got {self.coordinates!r}")
+        if not isinstance(self.threads, int) or self.threads < 1:
+            raise InputError(f"threads must be a whole number >= 1, got {self.threads!r}")
+        if self.cis_solver not in cis_solver.SOLVERS:
+            raise InputError(
+                f"unknown CIS solver '{self.cis_solver}'; valid: {', '.join(cis_solver.SOLVERS)}")
         if self.gamma is not None and self.gamma not in param_registry.GAMMA_FORMULAS:
             raise InputError(
                 f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
@@ -202,49 +220,79 @@ def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model
 
 
 def solve_model(model: Model, options: Options = Options(), index: int = 0,
-                atom_indices: np.ndarray | None = None) -> ChromophoreResult:
-    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError."""
-    scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter)
+                atom_indices: np.ndarray | None = None, timer: StageTimer | None = None,
+                dens_guess: np.ndarray | None = None) -> ChromophoreResult:
+    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError.
+
+    timer : optional :class:`~ppp.analysis.timings.StageTimer` that receives the stage times
+    dens_guess : optional Kekule-structure start density (:func:`kekule_guess`), used first from
+        ``KEKULE_START_FROM`` centres on and as a fallback below
+    """
+    with blas_threads(options.threads):
+        return _solve_model(model, options, index, atom_indices, timer, dens_guess)
+
+
+def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> ChromophoreResult:
+    with maybe_stage(timer, "SCF"):
+        scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter,
+                                alt_dens0=dens_guess, alt_first=model.n_centres >= KEKULE_START_FROM)
     if not scf.converged:
         raise ConvergenceError(
             f"SCF did not converge for chromophore {index + 1} ({model.n_centres} centres) after "
             f"{scf.iterations} iterations (last |FP-PF| = {scf.max_error:.1e} eV); no states reported")
-    sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
+    with maybe_stage(timer, "CIS singlets"):
+        sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
+                                 solver=options.cis_solver, dipole_coords=model.coords)
     if len(sing.energies) and sing.energies[0] <= 0.0:
         # the SCF may sit on a saddle point: follow the instability to a lower closed-shell minimum
-        stable = stability.follow(model.core, model.gamma, model.n_occ, scf, max_iter=options.max_iter)
+        with maybe_stage(timer, "stability following"):
+            stable = stability.follow(model.core, model.gamma, model.n_occ, scf, max_iter=options.max_iter)
         if stable is not None and stable is not scf:
             scf = stable
-            sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
-    trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3)
-    notes = []
+            with maybe_stage(timer, "CIS singlets"):
+                sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ,
+                                         options.n_singlets, 1, solver=options.cis_solver,
+                                         dipole_coords=model.coords)
     # A non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus 1967
-    # instability). Singlet instability: the closed-shell ground state itself is wrong (biradical
-    # character), so the molecule is refused. Triplet instability (common for long polyenes and large
-    # acenes with PPP parameters): the singlets stand, but no triplet energies are reported.
+    # instability). Singlet instability that cannot be followed to a minimum: the closed-shell ground
+    # state itself is wrong (biradical character), so the molecule is refused. Triplet instability
+    # (common for long polyenes and large acenes with PPP parameters): the singlets stand, but no
+    # triplet energies are reported.
     if len(sing.energies) and sing.energies[0] <= 0.0:
         raise UnsupportedError(
             f"closed-shell ground state of chromophore {index + 1} is unstable and no stable closed-shell "
             f"solution was found (lowest singlet excitation {sing.energies[0]:.3f} eV <= 0): open-shell or "
             f"biradical character")
+    with maybe_stage(timer, "CIS triplets"):
+        trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3,
+                                 solver=options.cis_solver)
+    notes = []
     if len(trip.energies) and trip.energies[0] <= 0.0:
         notes.append(f"triplet instability of the closed-shell reference (lowest CIS triplet "
                      f"{trip.energies[0]:.3f} eV <= 0): triplet energies not reported")
         trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
-    return ChromophoreResult(
-        index=index,
-        atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
-        model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
-        singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
-        singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
-    )
+    with maybe_stage(timer, "properties"):
+        return ChromophoreResult(
+            index=index,
+            atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
+            model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
+            singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
+            singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
+        )
 
 
-def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiSystem, Model], ...]:
-    """Perceive the pi-systems of a molecule and build one model per chromophore."""
-    pset = param_registry.load(options.parameters)
-    work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
-    systems = perceive(work)
+def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer | None = None,
+                 pset=None) -> tuple[tuple[PiSystem, Model], ...]:
+    """Perceive the pi-systems of a molecule and build one model per chromophore.
+
+    pset : the parameter set if already loaded (saves re-reading it), else from ``options.parameters``.
+    """
+    if pset is None:
+        with maybe_stage(timer, "parameters"):
+            pset = param_registry.load(options.parameters)
+    with maybe_stage(timer, "perception"):
+        work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+        systems = perceive(work)
     for k, sys_ in enumerate(systems):
         if sys_.n_centres > options.max_centres:
             raise TooLargeError(
@@ -253,17 +301,19 @@ def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiS
     all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
     out = []
     for sys_ in systems:
-        coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, pset.bond_length_angstrom,
-                                    options.coordinates, all_pi_bonds=all_bonds)
+        with maybe_stage(timer, "coordinates"):
+            coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, pset.bond_length_angstrom,
+                                        options.coordinates, all_pi_bonds=all_bonds)
         labels = [f"atom {i + 1} ({e})" for i, e in zip(sys_.atom_indices, sys_.elements)]
-        model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, coords, pset,
-                            options.gamma, atom_labels=labels)
+        with maybe_stage(timer, "model (gamma, h)"):
+            model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, coords, pset,
+                                options.gamma, atom_labels=labels)
         out.append((sys_, model))
     return tuple(out)
 
 
 def compute(structure: str | Chem.Mol, name: str | None = None, options: Options | None = None,
-            **kwargs) -> MoleculeResult:
+            timer: StageTimer | None = None, **kwargs) -> MoleculeResult:
     """Predict the pi->pi* excited states of one molecule.
 
     Parameters
@@ -271,6 +321,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
     structure : SMILES string or RDKit molecule (e.g. from a MOL/SDF record)
     name : label used in output and error messages (default: the SMILES)
     options : :class:`Options`; keyword arguments override its fields, e.g. ``n_singlets=5``
+    timer : optional :class:`~ppp.analysis.timings.StageTimer` collecting wall time per stage
 
     Raises a :class:`~ppp.errors.PPPError` subclass naming the molecule on any failure.
     """
@@ -288,14 +339,19 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
         label = name or (structure.GetProp("_Name") if structure.HasProp("_Name") else "") or "molecule"
         smiles_in = ""
     try:
-        mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
-        if not smiles_in:
-            smiles_in = Chem.MolToSmiles(mol)
-        canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
-        pset = param_registry.load(opts.parameters)
+        with maybe_stage(timer, "parse"):
+            mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
+            if not smiles_in:
+                smiles_in = Chem.MolToSmiles(mol)
+            canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
+        with maybe_stage(timer, "parameters"):
+            pset = param_registry.load(opts.parameters)
         chroms = []
-        for k, (sys_, model) in enumerate(build_models(mol, opts)):
-            chroms.append(solve_model(model, opts, index=k, atom_indices=sys_.atom_indices))
+        for k, (sys_, model) in enumerate(build_models(mol, opts, timer, pset=pset)):
+            with maybe_stage(timer, "perception"):
+                guess = kekule_guess(mol, sys_)
+            chroms.append(solve_model(model, opts, index=k, atom_indices=sys_.atom_indices, timer=timer,
+                                      dens_guess=guess))
     except PPPError as err:
         raise err.with_molecule(label)
     return MoleculeResult(name=label, smiles=smiles_in, canonical_smiles=canonical, parameters=pset.name,

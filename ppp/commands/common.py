@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from ..driver import Options
 from ..model.params import GAMMA_FORMULAS
+from ..solvers.cis import SOLVERS
 
 
 def add_model_arguments(p) -> None:
@@ -13,11 +14,17 @@ def add_model_arguments(p) -> None:
     g.add_argument("--triplets", type=int, default=10, metavar="N", help="triplet states per chromophore (10)")
     g.add_argument("--input-coordinates", action="store_true",
                    help="use the coordinates of the MOL/SDF records instead of idealised planar ones")
-    g.add_argument("--max-centres", type=int, default=300, metavar="N",
-                   help="refuse chromophores with more pi-centres than this (300)")
+    g.add_argument("--max-centres", type=int, default=Options.max_centres, metavar="N",
+                   help=f"refuse chromophores with more pi-centres than this ({Options.max_centres})")
+    g.add_argument("--cis-solver", choices=SOLVERS, default="auto",
+                   help="CIS eigensolver: dense matrix, matrix-free iterative (Davidson), or auto "
+                        "(dense for small pi-systems)")
+    g.add_argument("--threads", type=int, default=1, metavar="N",
+                   help="BLAS threads per molecule (1; more can help one large molecule on an idle machine)")
 
 
 def options_from(args) -> Options:
     return Options(parameters=args.parameters, gamma=args.gamma, n_singlets=args.singlets,
                    n_triplets=args.triplets, coordinates="input" if args.input_coordinates else "depiction",
-                   max_centres=args.max_centres)
+                   max_centres=args.max_centres, cis_solver=getattr(args, "cis_solver", "auto"),
+                   threads=getattr(args, "threads", 1))
