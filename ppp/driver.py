@@ -9,6 +9,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 from rdkit import Chem
 
+from .analysis.timings import StageTimer, maybe_stage
 from .analysis.properties import (Configuration, GroundState, dominant_configurations, ground_state,
                                   oscillator_strengths, polarization, transition_dipoles)
 from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
@@ -17,6 +18,9 @@ from .model import variable_beta
 from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
 from .solvers import scf as scf_solver
+from .solvers import stability
+from .solvers.guess import kekule_guess
+from .solvers.threads import blas_threads
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
 from .structure.twist import embed_conformer, twist_factors
@@ -27,6 +31,9 @@ from .units import ev_to_nm
 BRIGHT_F = 0.01
 #: Where centre coordinates can come from (see :class:`Options`).
 COORDINATE_SOURCES = ("depiction", "input", "conformer")
+#: From this many centres on, the SCF starts from the Kekule structure (ppp.solvers.guess) and falls
+#: back to the core-Hamiltonian start; below, the other way round.
+KEKULE_START_FROM = 60
 
 
 @dataclass(frozen=True)
@@ -39,8 +46,13 @@ class Options:
     coordinates : "depiction" (idealised 2D, default), "input" (coordinates of a MOL/SDF record) or
         "conformer" (idealised planar coordinates, with twist angles from an RDKit 3D conformer relaxed
         with MMFF94, seeded by ``conformer_seed``)
-    max_centres : largest chromophore accepted (dense CIS memory grows as N^4)
+    max_centres : largest chromophore accepted (time grows as N^3, memory as N^2 with the iterative
+        CIS solver: 30-60 s and about 1.1 GB at 1,000 centres, 1.5 GB at 1,200; docs/performance.md)
     max_iter : SCF iterations per attempt
+    cis_solver : "auto" (dense CIS matrix for small systems, matrix-free Davidson above
+        ``ppp.solvers.cis.DENSE_MAX_CONFIGURATIONS`` configurations), "dense" or "iterative"
+    threads : BLAS threads for one chromophore (1 is fastest on a shared or batch-loaded machine;
+        more may help a single large molecule on an otherwise idle one; see ppp.solvers.threads)
     bond_order_beta : iterate beta with the SCF bond orders (True/False; None: the parameter set's choice)
     twist : scale beta by |cos| of the angle between p axes when coordinates are 3D
     conformer_seed : random seed of the conformer embedding
@@ -51,8 +63,10 @@ class Options:
     n_singlets: int = 10
     n_triplets: int = 10
     coordinates: str = "depiction"
-    max_centres: int = 300
+    max_centres: int = 1200
     max_iter: int = 100
+    cis_solver: str = "auto"
+    threads: int = 1
     bond_order_beta: bool | None = None
     twist: bool = True
     conformer_seed: int = 42
@@ -65,6 +79,11 @@ class Options:
         if self.coordinates not in COORDINATE_SOURCES:
             raise InputError(f"coordinates must be one of {', '.join(COORDINATE_SOURCES)}, "
                              f"got {self.coordinates!r}")
+        if not isinstance(self.threads, int) or self.threads < 1:
+            raise InputError(f"threads must be a whole number >= 1, got {self.threads!r}")
+        if self.cis_solver not in cis_solver.SOLVERS:
+            raise InputError(
+                f"unknown CIS solver '{self.cis_solver}'; valid: {', '.join(cis_solver.SOLVERS)}")
         if self.gamma is not None and self.gamma not in param_registry.GAMMA_FORMULAS:
             raise InputError(
                 f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
@@ -110,6 +129,7 @@ class ChromophoreResult:
     triplets: tuple[State, ...]
     singlet_amplitudes: np.ndarray  # (k, n_occ, n_vir)
     triplet_amplitudes: np.ndarray
+    warnings: tuple[str, ...] = ()  # conditions the user must know about (e.g. triplet instability)
 
     @property
     def e_total(self) -> float:
@@ -136,6 +156,13 @@ class MoleculeResult:
     parameters_sha256: str
     options: Options
     chromophores: tuple[ChromophoreResult, ...]
+
+    @property
+    def warnings(self) -> tuple[str, ...]:
+        """Warnings of all chromophores, prefixed with the chromophore number when there are several."""
+        many = len(self.chromophores) > 1
+        return tuple((f"chromophore {c.index + 1}: " if many else "") + w
+                     for c in self.chromophores for w in c.warnings)
 
     @property
     def states(self) -> tuple[State, ...]:
@@ -205,21 +232,25 @@ def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model
     return tuple(out)
 
 
-def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0: np.ndarray | None = None):
-    """SCF of one model; with ``model.bond_order_beta`` set, iterated with bond-order betas.
+def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0: np.ndarray | None = None,
+               dens_guess: np.ndarray | None = None):
+    """SCF of one model; with ``model.bond_order_beta`` set, iterated with bond-order betas
+    (ppp.model.variable_beta).
 
     dens0 : optional (N, N) starting density (e.g. the converged density of a nearby parameter set)
+    dens_guess : optional Kekule-structure start density, used first from ``KEKULE_START_FROM`` centres on
+        and as a fallback below
     Returns (model, scf): the model carries the final core Hamiltonian. Raises ConvergenceError.
     """
+    kw = dict(max_iter=options.max_iter, alt_dens0=dens_guess, alt_first=model.n_centres >= KEKULE_START_FROM)
     if model.bond_order_beta is not None:
         try:
             vb = variable_beta.iterate(model.core, model.gamma, model.n_occ, model.types, model.bonds,
-                                       model.bond_order_beta, scf_solver.kernel, max_iter=options.max_iter,
-                                       dens0=dens0)
+                                       model.bond_order_beta, scf_solver.kernel, dens0=dens0, **kw)
         except ConvergenceError as err:
             raise ConvergenceError(f"chromophore {index + 1} ({model.n_centres} centres): {err.reason}") from None
         return replace(model, core=vb.core), vb.scf
-    scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, max_iter=options.max_iter, dens0=dens0)
+    scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, dens0=dens0, **kw)
     if not scf.converged:
         raise ConvergenceError(
             f"SCF did not converge for chromophore {index + 1} ({model.n_centres} centres) after "
@@ -228,25 +259,60 @@ def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0
 
 
 def solve_model(model: Model, options: Options = Options(), index: int = 0,
-                atom_indices: np.ndarray | None = None) -> ChromophoreResult:
-    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError."""
-    model, scf = ground_scf(model, options, index)
-    sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1)
-    trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3)
-    for res, kind in ((sing, "singlet"), (trip, "triplet")):
-        # a non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus
-        # 1967 instability): the molecule has open-shell / biradical character the model cannot describe
-        if len(res.energies) and res.energies[0] <= 0.0:
-            raise UnsupportedError(
-                f"closed-shell ground state of chromophore {index + 1} is unstable (lowest {kind} "
-                f"excitation {res.energies[0]:.3f} eV <= 0): open-shell or biradical character")
-    return ChromophoreResult(
-        index=index,
-        atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
-        model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
-        singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
-        singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes,
-    )
+                atom_indices: np.ndarray | None = None, timer: StageTimer | None = None,
+                dens_guess: np.ndarray | None = None) -> ChromophoreResult:
+    """SCF, CIS singlets and triplets, and observables for one model. Raises ConvergenceError.
+
+    timer : optional :class:`~ppp.analysis.timings.StageTimer` that receives the stage times
+    dens_guess : optional Kekule-structure start density (:func:`kekule_guess`), used first from
+        ``KEKULE_START_FROM`` centres on and as a fallback below
+    """
+    with blas_threads(options.threads):
+        return _solve_model(model, options, index, atom_indices, timer, dens_guess)
+
+
+def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> ChromophoreResult:
+    with maybe_stage(timer, "SCF"):
+        model, scf = ground_scf(model, options, index, dens_guess=dens_guess)
+    with maybe_stage(timer, "CIS singlets"):
+        sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
+                                 solver=options.cis_solver, dipole_coords=model.coords)
+    if len(sing.energies) and sing.energies[0] <= 0.0:
+        # the SCF may sit on a saddle point: follow the instability to a lower closed-shell minimum
+        with maybe_stage(timer, "stability following"):
+            stable = stability.follow(model.core, model.gamma, model.n_occ, scf, max_iter=options.max_iter)
+        if stable is not None and stable is not scf:
+            scf = stable
+            with maybe_stage(timer, "CIS singlets"):
+                sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ,
+                                         options.n_singlets, 1, solver=options.cis_solver,
+                                         dipole_coords=model.coords)
+    # A non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus 1967
+    # instability). Singlet instability that cannot be followed to a minimum: the closed-shell ground
+    # state itself is wrong (biradical character), so the molecule is refused. Triplet instability
+    # (common for long polyenes and large acenes with PPP parameters): the singlets stand, but no
+    # triplet energies are reported.
+    if len(sing.energies) and sing.energies[0] <= 0.0:
+        raise UnsupportedError(
+            f"closed-shell ground state of chromophore {index + 1} is unstable and no stable closed-shell "
+            f"solution was found (lowest singlet excitation {sing.energies[0]:.3f} eV <= 0): open-shell or "
+            f"biradical character")
+    with maybe_stage(timer, "CIS triplets"):
+        trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3,
+                                 solver=options.cis_solver)
+    notes = []
+    if len(trip.energies) and trip.energies[0] <= 0.0:
+        notes.append(f"triplet instability of the closed-shell reference (lowest CIS triplet "
+                     f"{trip.energies[0]:.3f} eV <= 0): triplet energies not reported")
+        trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
+    with maybe_stage(timer, "properties"):
+        return ChromophoreResult(
+            index=index,
+            atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
+            model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
+            singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
+            singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
+        )
 
 
 @dataclass(frozen=True)
@@ -261,15 +327,17 @@ class Prepared:
     twist: np.ndarray | None
 
 
-def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | None = None) -> tuple[Prepared, ...]:
+def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | None = None,
+            timer: StageTimer | None = None) -> tuple[Prepared, ...]:
     """Perceive the pi-systems of a molecule and place their centres (depiction, input or conformer).
 
     ``bond_length`` (A) scales 2D coordinates; default: the parameter set's standard length.
     """
     if bond_length is None:
         bond_length = param_registry.load(options.parameters).bond_length_angstrom
-    work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
-    systems = perceive(work)
+    with maybe_stage(timer, "perception"):
+        work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+        systems = perceive(work)
     for k, sys_ in enumerate(systems):
         if sys_.n_centres > options.max_centres:
             raise TooLargeError(
@@ -281,7 +349,8 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     # delocalised dyes (cyanines) through gamma.
     geo, pos, is3d = work, None, False
     if options.coordinates == "conformer":
-        geo, _ = embed_conformer(work, options.conformer_seed)
+        with maybe_stage(timer, "conformer"):
+            geo, _ = embed_conformer(work, options.conformer_seed)
     if options.coordinates in ("input", "conformer") and geo.GetNumConformers():
         conf = geo.GetConformer()
         pos = np.asarray(conf.GetPositions(), dtype=float)
@@ -290,9 +359,10 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
     out = []
     for sys_ in systems:
-        coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
-                                    all_pi_bonds=all_bonds)
-        twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
+        with maybe_stage(timer, "coordinates"):
+            coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
+                                        all_pi_bonds=all_bonds)
+            twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
         out.append(Prepared(sys_, coords, twist))
     return tuple(out)
 
@@ -307,15 +377,24 @@ def model_for(prep: Prepared, pset: param_registry.ParameterSet, options: Option
                        options.gamma, atom_labels=labels, twist_factors=prep.twist, bond_order_beta=settings)
 
 
-def build_models(mol: Chem.Mol, options: Options = Options()) -> tuple[tuple[PiSystem, Model], ...]:
-    """Perceive the pi-systems of a molecule and build one model per chromophore."""
-    pset = param_registry.load(options.parameters)
-    return tuple((p.system, model_for(p, pset, options))
-                 for p in prepare(mol, options, pset.bond_length_angstrom))
+def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer | None = None,
+                 pset=None) -> tuple[tuple[PiSystem, Model], ...]:
+    """Perceive the pi-systems of a molecule and build one model per chromophore.
+
+    pset : the parameter set if already loaded (saves re-reading it), else from ``options.parameters``.
+    """
+    if pset is None:
+        with maybe_stage(timer, "parameters"):
+            pset = param_registry.load(options.parameters)
+    out = []
+    for prep in prepare(mol, options, pset.bond_length_angstrom, timer):
+        with maybe_stage(timer, "model (gamma, h)"):
+            out.append((prep.system, model_for(prep, pset, options)))
+    return tuple(out)
 
 
 def compute(structure: str | Chem.Mol, name: str | None = None, options: Options | None = None,
-            **kwargs) -> MoleculeResult:
+            timer: StageTimer | None = None, **kwargs) -> MoleculeResult:
     """Predict the pi->pi* excited states of one molecule.
 
     Parameters
@@ -323,6 +402,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
     structure : SMILES string or RDKit molecule (e.g. from a MOL/SDF record)
     name : label used in output and error messages (default: the SMILES)
     options : :class:`Options`; keyword arguments override its fields, e.g. ``n_singlets=5``
+    timer : optional :class:`~ppp.analysis.timings.StageTimer` collecting wall time per stage
 
     Raises a :class:`~ppp.errors.PPPError` subclass naming the molecule on any failure.
     """
@@ -340,14 +420,19 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
         label = name or (structure.GetProp("_Name") if structure.HasProp("_Name") else "") or "molecule"
         smiles_in = ""
     try:
-        mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
-        if not smiles_in:
-            smiles_in = Chem.MolToSmiles(mol)
-        canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
-        pset = param_registry.load(opts.parameters)
+        with maybe_stage(timer, "parse"):
+            mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
+            if not smiles_in:
+                smiles_in = Chem.MolToSmiles(mol)
+            canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
+        with maybe_stage(timer, "parameters"):
+            pset = param_registry.load(opts.parameters)
         chroms = []
-        for k, (sys_, model) in enumerate(build_models(mol, opts)):
-            chroms.append(solve_model(model, opts, index=k, atom_indices=sys_.atom_indices))
+        for k, (sys_, model) in enumerate(build_models(mol, opts, timer, pset=pset)):
+            with maybe_stage(timer, "perception"):
+                guess = kekule_guess(mol, sys_)
+            chroms.append(solve_model(model, opts, index=k, atom_indices=sys_.atom_indices, timer=timer,
+                                      dens_guess=guess))
     except PPPError as err:
         raise err.with_molecule(label)
     return MoleculeResult(name=label, smiles=smiles_in, canonical_smiles=canonical, parameters=pset.name,

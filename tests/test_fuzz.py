@@ -87,6 +87,15 @@ def test_cli_never_crashes(text):
     import io
     err = io.StringIO()
     with contextlib.redirect_stderr(err), contextlib.redirect_stdout(io.StringIO()):
-        code = cli_main(["run", text])
+        code = cli_main(["run", "--", text])  # "--": a SMILES may start with "-"
     assert code in (0, 1)
     assert "Traceback" not in err.getvalue() and "internal error" not in err.getvalue()
+
+
+def test_cli_smiles_starting_with_dash_without_separator_is_a_usage_error(capsys):
+    import pytest
+    with pytest.raises(SystemExit) as exc:
+        cli_main(["run", "-C"])
+    assert exc.value.code == 2
+    err = capsys.readouterr().err
+    assert "unrecognized arguments: -C" in err and "Traceback" not in err

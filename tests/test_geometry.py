@@ -56,3 +56,16 @@ def test_input_coordinates_used_when_asked():
 def test_input_coordinates_missing_is_an_error():
     with pytest.raises(ppp.InputError, match="no input coordinates"):
         ppp.compute(mol_from_smiles("C=CC=C"), options=Options(coordinates="input"))
+
+
+def test_depiction_does_not_depend_on_rdkit_global_switch():
+    # RDKit's process-wide CoordGen preference (turned on by drawing code) must not change results
+    from rdkit.Chem import rdDepictor
+    ref = model_of("CN(C)c1ccc(cc1)/N=N/c1ccccc1")
+    previous = rdDepictor.GetPreferCoordGen()
+    try:
+        rdDepictor.SetPreferCoordGen(True)
+        other = model_of("CN(C)c1ccc(cc1)/N=N/c1ccccc1")
+    finally:
+        rdDepictor.SetPreferCoordGen(previous)
+    assert np.array_equal(ref.coords, other.coords)

@@ -81,10 +81,16 @@ def test_unconverged_kernel_result_is_flagged():
     assert r.converged is False and r.max_error > 1e-6
 
 
-def test_unstable_closed_shell_is_refused():
-    # square cyclobutadiene: degenerate HOMO/LUMO, singlet instability of the closed shell (common practice)
-    with pytest.raises(ppp.UnsupportedError, match="unstable"):
-        ppp.compute("C1=CC=C1")
+def test_square_cyclobutadiene_follows_instability_to_lower_solution():
+    # square cyclobutadiene: degenerate HOMO/LUMO; the symmetric closed shell is a saddle point
+    # (common practice); ppp follows it to the lower, bond-alternant closed-shell solution and says
+    # that the triplets are not reported (triplet instability remains)
+    m = model_of("C1=CC=C1")
+    symmetric = scf.kernel(m.core, m.gamma, m.n_occ)
+    res = ppp.compute("C1=CC=C1")
+    c = res.chromophores[0]
+    assert c.scf.e_elec < symmetric.e_elec - 0.1
+    assert res.s1.energy_ev > 0 and not res.triplets and res.warnings
 
 
 def test_total_energy_includes_core_repulsion():
@@ -92,3 +98,13 @@ def test_total_energy_includes_core_repulsion():
     c = r.chromophores[0]
     assert np.isclose(c.e_total, c.scf.e_elec + c.model.e_core)
     assert np.isclose(r.to_dict()["scf"]["energy_ev"], c.e_total)
+
+
+def test_triplet_instability_keeps_singlets_and_says_so():
+    # long polyene: RHF triplet instability with MN gamma (common practice: PPP-RHF of long polyenes);
+    # the singlets are still reported, the triplets are not, and the result carries a warning
+    res = ppp.compute("CC(C)=CC=CC(C)=CC=CC=C(C)C=CC=C(C)C=CC=C(C)C")
+    assert res.singlets and not res.triplets
+    assert any("triplet instability" in w for w in res.warnings)
+    assert "triplet instability" in res.table()
+    assert res.to_dict()["warnings"]

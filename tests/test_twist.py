@@ -73,10 +73,11 @@ def test_twist_switched_off_reduces_to_fixed_beta():
 
 
 def test_fully_twisted_bond_is_reported_as_biradical():
-    # at 90 deg beta vanishes: the two-centre system is a biradical, the closed-shell model must refuse
-    from ppp.errors import UnsupportedError
-    with pytest.raises(UnsupportedError, match="biradical"):
-        ppp.compute(_tetramethylethylene(89.0), name="tme", coordinates="input", n_singlets=1, n_triplets=1)
+    # at 90 deg beta vanishes: the two-centre system is a biradical; the closed-shell reference is
+    # triplet-unstable (E(T1) = -(g11 - g12)/2 < 0), which must be reported, never silently printed
+    res = ppp.compute(_tetramethylethylene(89.0), name="tme", coordinates="input", n_singlets=1, n_triplets=1)
+    assert any("triplet instability" in w for w in res.chromophores[0].warnings)
+    assert len(res.triplets) == 0
 
 
 def test_twist_factors_follow_dihedral():

@@ -22,10 +22,19 @@ def transition_dipoles(mo_coeff: np.ndarray, n_occ: int, amplitudes: np.ndarray,
     ----------
     mo_coeff : (N, N); n_occ : int; amplitudes : (k, n_occ, n_vir); coords : (N, 3) A
     """
+    dip = dipole_integrals(mo_coeff, n_occ, coords)
+    k = amplitudes.shape[0]
+    return np.sqrt(2.0) * (amplitudes.reshape(k, -1) @ dip.reshape(3, -1).T)
+
+
+def dipole_integrals(mo_coeff: np.ndarray, n_occ: int, coords: np.ndarray) -> np.ndarray:
+    """<i|r|a> = sum_mu C_mu,i R_mu C_mu,a for each Cartesian component: (3, n_occ, n_vir), A.
+
+    Three matrix products C_o^T diag(R_x) C_v (O(N n_occ n_vir) each) rather than one three-operand
+    contraction, which numpy would evaluate as a plain loop."""
     co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
-    # <i|r|a> for each Cartesian component: (3, n_occ, n_vir)
-    dip = np.einsum("mi,mx,ma->xia", co, coords, cv)
-    return np.sqrt(2.0) * np.einsum("kia,xia->kx", amplitudes, dip)
+    coords = np.asarray(coords, dtype=float)
+    return np.stack([co.T @ (coords[:, x, None] * cv) for x in range(3)])
 
 
 def oscillator_strengths(energies_ev: np.ndarray, tdm_eangstrom: np.ndarray) -> np.ndarray:
@@ -82,17 +91,29 @@ def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: floa
                             max_count: int = 4) -> list[tuple[Configuration, ...]]:
     """For each root, the configurations with weight >= ``min_weight`` (at most ``max_count``),
     largest first. amplitudes: (k, n_occ, n_vir)."""
+    amplitudes = np.asarray(amplitudes)
+    k = amplitudes.shape[0]
+    if k == 0:
+        return []
+    n_vir = amplitudes.shape[2]
+    w = (amplitudes * amplitudes).reshape(k, -1)
+    m = min(max_count, w.shape[1])
+    if w.shape[1] > 4 * m:  # only the largest few are needed: partial selection, O(n) per root
+        top = np.sort(np.argpartition(-w, m - 1, axis=1)[:, :m], axis=1)
+    else:
+        top = np.broadcast_to(np.arange(w.shape[1]), w.shape)
+    vals = np.take_along_axis(w, top, axis=1)
+    # by weight, ties by configuration index (as a stable sort of the whole row would give)
+    order = np.take_along_axis(top, np.argsort(-vals, axis=1, kind="stable"), axis=1)[:, :m]
+    weights = np.take_along_axis(w, order, axis=1)
     out = []
-    for x in amplitudes:
-        w = (x * x).ravel()
-        order = np.argsort(-w, kind="stable")[:max_count]
+    for r in range(k):
         confs = []
-        for idx in order:
-            if w[idx] < min_weight and confs:
+        for idx, wt in zip(order[r].tolist(), weights[r].tolist()):
+            if wt < min_weight and confs:
                 break
-            i, a = divmod(int(idx), x.shape[1])
-            confs.append(Configuration(i, n_occ + a, float(w[idx]), orbital_label(i, n_occ),
-                                       orbital_label(n_occ + a, n_occ)))
+            i, a = divmod(idx, n_vir)
+            confs.append(Configuration(i, n_occ + a, wt, orbital_label(i, n_occ), orbital_label(n_occ + a, n_occ)))
         out.append(tuple(confs))
     return out
 

@@ -3,10 +3,12 @@ from __future__ import annotations
 
 import json
 import sys
+import time
 import traceback
 from pathlib import Path
 
 from .. import __version__
+from ..analysis.timings import StageTimer, maybe_stage
 from ..driver import compute
 from ..errors import PPPError, StorageError
 from ..io import h5_io
@@ -14,6 +16,10 @@ from ..structure.readers import read_molfile
 from .common import add_model_arguments, options_from
 
 NAME = "run"
+#: Process-relative reference for --timings' "other (start-up etc.)" line: the time at which this
+#: module was imported, which is after interpreter start-up but covers the package imports that follow.
+_START = time.perf_counter()
+
 HELP = "excited states of molecules given as SMILES or in a MOL/SDF file"
 
 
@@ -23,10 +29,21 @@ def add_arguments(p) -> None:
     p.add_argument("--json", action="store_true", help="print JSON (schema: ppp/io/result.schema.json)")
     p.add_argument("--save", metavar="FILE.h5", help="write the full record (model, orbitals, CI vectors) to HDF5")
     p.add_argument("--overwrite", action="store_true", help="allow --save to replace an existing file")
+    p.add_argument("--timings", action="store_true",
+                   help="print the wall time of each stage (parse, perception, ..., SCF, CIS, output) to stderr")
     add_model_arguments(p)
 
 
 def main(args) -> int:
+    timer = StageTimer() if args.timings else None
+    try:
+        return _main(args, timer)
+    finally:
+        if timer is not None:
+            print("\ntimings (wall clock):\n" + timer.report(wall=time.perf_counter() - _START), file=sys.stderr)
+
+
+def _main(args, timer) -> int:
     options = options_from(args)
     if args.save and Path(args.save).exists() and not args.overwrite:
         raise StorageError(f"'{args.save}' exists; add --overwrite to replace it")
@@ -41,7 +58,7 @@ def main(args) -> int:
         try:
             if isinstance(item, PPPError):
                 raise item
-            res = compute(item, name=label, options=options)
+            res = compute(item, name=label, options=options, timer=timer)
         except PPPError as err:
             err.with_molecule(label)
             errors.append(err)
@@ -52,18 +69,21 @@ def main(args) -> int:
             continue
         results.append(res)
         if not args.json:
-            print(res.table())
-            print()
+            with maybe_stage(timer, "output"):
+                print(res.table())
+                print()
     if args.json:
         doc = {"program": {"name": "ppp", "version": __version__},
                "results": [r.to_dict() for r in results],
                "errors": [{"name": e.molecule, "kind": e.kind, "reason": e.reason} for e in errors]}
-        json.dump(doc, sys.stdout, indent=1)
+        with maybe_stage(timer, "output"):
+            json.dump(doc, sys.stdout, indent=1)
         sys.stdout.write("\n")
         for e in errors:
             print(f"error: {e}", file=sys.stderr)
     if args.save and results:
-        h5_io.save(results, args.save, overwrite=args.overwrite)
+        with maybe_stage(timer, "output"):
+            h5_io.save(results, args.save, overwrite=args.overwrite)
         if not args.json:
             print(f"saved {len(results)} molecule(s) to {args.save}")
     return 1 if errors else 0

@@ -97,6 +97,7 @@ def result_to_dict(res) -> dict:
         "smiles": res.smiles,
         "canonical_smiles": res.canonical_smiles,
         "states": [_state(s) for s in res.states],
+        "warnings": list(res.warnings),
         "scf": {
             "energy_ev": float(sum(c.e_total for c in res.chromophores)),
             "converged": all(c.scf.converged for c in res.chromophores),

@@ -33,6 +33,8 @@ def format_result(res) -> str:
         chrom = f"{st.chromophore + 1:>3} " if multi else ""
         lines.append(f"  {st.label:<5} {chrom}{st.energy_ev:7.3f} {_fmt_nm(st.wavelength_nm)}  {f}   "
                      f"{pol:<13} {st.character}")
+    for w in res.warnings:
+        lines.append(f"  warning: {w}")
     b = res.first_bright
     if b is not None:
         from ..calibration.uncertainty import for_result

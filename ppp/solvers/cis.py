@@ -19,6 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
+from ..errors import InputError, TooLargeError
+
 
 @dataclass(frozen=True)
 class CISResult:
@@ -60,28 +62,109 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
     return a
 
 
+#: Solver names accepted by :func:`kernel`.
+SOLVERS = ("auto", "dense", "iterative")
+#: "auto" uses the dense matrix up to this many configurations n_occ * n_vir, Davidson above. Measured
+#: by benchmarks/bench_crossover.py (11 roots, one thread): dense 2x slower at 900 configurations
+#: (60 centres), 2-3x faster at 360-400 (40 centres); the switch sits at about 50 centres.
+DENSE_MAX_CONFIGURATIONS = 625
+#: "dense" refuses matrices above this many bytes (the diagonaliser needs about three times as much).
+DENSE_MAX_BYTES = 2 * 2**30
+#: Roots closer than this (eV) form one degenerate level for :func:`align_degenerate`.
+DEGENERACY_TOL = 1e-6
+
+
+def choose_solver(n_occ: int, n_vir: int, solver: str = "auto") -> str:
+    """"dense" or "iterative" for a problem of n_occ * n_vir configurations."""
+    if solver not in SOLVERS:
+        raise InputError(f"unknown CIS solver '{solver}'; valid: {', '.join(SOLVERS)}")
+    if solver == "auto":
+        return "dense" if n_occ * n_vir <= DENSE_MAX_CONFIGURATIONS else "iterative"
+    return solver
+
+
 def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int, n_states: int,
-           multiplicity: int = 1) -> CISResult:
+           multiplicity: int = 1, solver: str = "auto", dipole_coords: np.ndarray | None = None) -> CISResult:
     """Lowest ``n_states`` CIS roots (all of them if fewer exist).
 
     Parameters
     ----------
     mo_energy : (N,) eV;  mo_coeff : (N, N);  gamma : (N, N) eV
     n_occ : doubly occupied orbitals;  n_states : roots wanted;  multiplicity : 1 or 3
+    solver : "dense" (full matrix, LAPACK), "iterative" (matrix-free Davidson,
+        :mod:`ppp.solvers.cis_iterative`) or "auto" (dense up to ``DENSE_MAX_CONFIGURATIONS``)
+    dipole_coords : optional (N, 3) centre coordinates; when given, the vectors of each degenerate
+        level are rotated by :func:`align_degenerate` so that per-state oscillator strengths do not
+        depend on the solver
+
+    Raises TooLargeError when the dense matrix would exceed ``DENSE_MAX_BYTES``.
     """
     n = mo_coeff.shape[0]
     o, v = n_occ, n - n_occ
     k = max(0, min(int(n_states), o * v))
+    method = choose_solver(o, v, solver)
     if k == 0:
         return CISResult(multiplicity, np.zeros(0), np.zeros((0, o, v)))
-    a = cis_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity)
-    if k < o * v:
-        w, x = scipy.linalg.eigh(a, subset_by_index=[0, k - 1], driver="evr")
+    # with dipole alignment, one root more tells whether the last degenerate level is complete
+    k_solve = k + 1 if dipole_coords is not None and k < o * v else k
+    if method == "iterative" and k_solve < o * v:
+        from . import cis_iterative
+        res = cis_iterative.kernel(mo_energy, mo_coeff, gamma, n_occ, k_solve, multiplicity)
+        w, x = res.energies, res.amplitudes
     else:
-        w, x = scipy.linalg.eigh(a)
-    x = x.T.reshape(k, o, v)
+        need = 8.0 * (o * v) ** 2
+        if need > DENSE_MAX_BYTES:
+            raise TooLargeError(
+                f"dense CIS matrix of {o * v} configurations needs {need / 2**30:.1f} GB; use the "
+                f"iterative solver")
+        a = cis_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity)
+        if k_solve < o * v:
+            w, x = scipy.linalg.eigh(a, subset_by_index=[0, k_solve - 1], driver="evr")
+        else:
+            w, x = scipy.linalg.eigh(a)
+        x = x.T.reshape(-1, o, v)
+    if dipole_coords is not None:
+        x = align_degenerate(w, x, mo_coeff, n_occ, dipole_coords)
+    w, x = w[:k], x[:k]
     # fix the arbitrary sign of each root: largest coefficient positive (reproducible output)
     flat = x.reshape(k, -1)
     sign = np.sign(flat[np.arange(k), np.argmax(np.abs(flat), axis=1)])
     x = x * sign[:, None, None]
     return CISResult(multiplicity, w, x)
+
+
+def align_degenerate(energies: np.ndarray, amplitudes: np.ndarray, mo_coeff: np.ndarray, n_occ: int,
+                     coords: np.ndarray, tol: float = DEGENERACY_TOL) -> np.ndarray:
+    """Rotate the CI vectors inside each degenerate level to a solver-independent basis.
+
+    Any orthonormal basis of a degenerate level is an equally valid set of eigenvectors, but the
+    oscillator strength of each member depends on the choice. With M (g x 3) the transition dipoles
+    <0|r|n> = sum_ia X^n_ia <i|r|a> of the g members and M = U S W^T its singular value decomposition,
+    the vectors U^T X carry the mutually orthogonal dipoles S W^T: the first takes the largest
+    possible share, the second the largest share orthogonal to it, and so on. The per-state
+    strengths (proportional to S_k^2) are then unique; only the members of a level with equal S_k
+    (e.g. the two components of an E-type level of a symmetric molecule) keep an arbitrary mixing,
+    which leaves their strengths unchanged. A level cut by the last root computed is left alone.
+
+    amplitudes : (k, n_occ, n_vir); coords : (N, 3). Returns the rotated amplitudes.
+    """
+    k = len(energies)
+    if k < 2:
+        return amplitudes
+    out = np.array(amplitudes, copy=True)
+    dip = None
+    start = 0
+    while start < k:
+        stop = start + 1
+        while stop < k and energies[stop] - energies[stop - 1] < tol:
+            stop += 1
+        if stop - start > 1 and stop < k:
+            x = out[start:stop].reshape(stop - start, -1)
+            if dip is None:  # <i|r|a> (n_occ * n_vir, 3)
+                from ..analysis.properties import dipole_integrals
+                dip = dipole_integrals(mo_coeff, n_occ, coords).reshape(3, -1).T
+            m = x @ dip  # transition dipoles of the members, (g, 3), up to the common sqrt(2)
+            u, _, _ = np.linalg.svd(m, full_matrices=True)
+            out[start:stop] = (u.T @ x).reshape(stop - start, *out.shape[1:])
+        start = stop
+    return out

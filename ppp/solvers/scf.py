@@ -13,13 +13,16 @@ A run that still fails returns ``converged=False``; callers must not use its orb
 """
 from __future__ import annotations
 
+import sys
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.linalg import lapack as _lapack
 
 #: Default thresholds: energy change (eV) and max |FP - PF| (eV).
 CONV_TOL_ENERGY = 1e-11
 CONV_TOL_GRAD = 1e-9
+_EPS = float(np.finfo(float).eps)
 
 
 @dataclass(frozen=True)
@@ -53,13 +56,35 @@ class SCFResult:
 def fock_matrix(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray) -> np.ndarray:
     """PPP Fock matrix (N, N), eV, from core h, gamma and density P (equation in the module doc)."""
     f = core - 0.5 * dens * gamma
-    f[np.diag_indices_from(f)] += gamma @ np.diag(dens)
+    f.flat[::f.shape[0] + 1] += gamma @ np.diagonal(dens)  # the diagonal, as a strided view
     return f
 
 
 def electronic_energy(core: np.ndarray, fock: np.ndarray, dens: np.ndarray) -> float:
     """E = 1/2 sum_ij P_ij (h_ij + F_ij), eV."""
-    return 0.5 * float(np.sum(dens * (core + fock)))
+    return 0.5 * float(np.vdot(dens, core + fock))
+
+
+#: The Fock matrix and energy come from the fused numba kernel (:func:`ppp.solvers.kernels.fock_energy`,
+#: 3-10 times faster than the numpy expression at every size, see benchmarks/bench_kernels.py) from
+#: this size on - provided numba is already loaded in the process. Loading it costs 1-3 s (import and
+#: LLVM set-up, even with a warm cache) against savings of 0.03-10 ms per SCF iteration, so it pays
+#: only in a process that handles many molecules and calls :func:`ppp.solvers.kernels.warm_up` once
+#: (a batch worker); a one-molecule run never loads numba.
+JIT_MIN_CENTRES = 1
+
+
+def _fock_energy_numpy(core, gamma, dens):
+    fock = fock_matrix(core, gamma, dens)
+    return fock, electronic_energy(core, fock, dens)
+
+
+def fock_builder(n_centres: int):
+    """Function (core, gamma, dens) -> (F, E) to use for a problem of this size (see JIT_MIN_CENTRES)."""
+    if n_centres >= JIT_MIN_CENTRES and "numba" in sys.modules:
+        from .kernels import fock_energy
+        return fock_energy
+    return _fock_energy_numpy
 
 
 def density(mo_coeff: np.ndarray, n_occ: int) -> np.ndarray:
@@ -68,56 +93,114 @@ def density(mo_coeff: np.ndarray, n_occ: int) -> np.ndarray:
     return 2.0 * c @ c.T
 
 
-def _diis_extrapolate(focks: list, errors: list) -> np.ndarray:
-    n = len(focks)
-    b = np.empty((n + 1, n + 1))
-    b[-1, :] = b[:, -1] = -1.0
-    b[-1, -1] = 0.0
-    for i in range(n):
-        for j in range(i + 1):
-            b[i, j] = b[j, i] = float(np.vdot(errors[i], errors[j]))
-    rhs = np.zeros(n + 1)
-    rhs[-1] = -1.0
-    scale = np.max(np.abs(b[:n, :n]))
-    if scale > 0:
-        b[:n, :n] /= scale
-    try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
-        coef = np.linalg.lstsq(b, rhs, rcond=None)[0]
-    except np.linalg.LinAlgError:
-        return focks[-1]
-    if not np.all(np.isfinite(coef)):
-        return focks[-1]
-    return sum(c * f for c, f in zip(coef[:n], focks))
+def eigh(mat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Eigenvalues (ascending) and eigenvectors of a symmetric matrix: LAPACK dsyevd called directly
+    (the routine behind numpy.linalg.eigh, without its wrapper: ~10 us less per call, which is a third
+    of the call at N = 12); numpy's routine if LAPACK reports a failure."""
+    w, v, info = _lapack.dsyevd(mat)
+    if info != 0:
+        return np.linalg.eigh(mat)
+    return w, v
+
+
+def commutator(fock: np.ndarray, dens: np.ndarray) -> np.ndarray:
+    """SCF error FP - PF (N, N), eV; for symmetric F and P it is FP - (FP)^T: one matrix product."""
+    fp = fock @ dens
+    return fp - fp.T
+
+
+class _DIIS:
+    """Pulay's (1980, 1982) direct inversion in the iterative subspace on the error FP - PF.
+
+    Fock matrices and error vectors live in preallocated ring buffers, and the overlap matrix
+    B_ij = <e_i|e_j> is extended by one row per iteration (one matrix-vector product, O(n N^2) for n
+    stored vectors, instead of O(n^2 N^2) for rebuilding it); the extrapolation is one more product.
+    """
+
+    def __init__(self, space: int):
+        self.space = space
+        self.slots: list[int] = []  # ring-buffer slots in insertion order
+        self._f = self._e = None
+        self._b = np.zeros((space, space))
+
+    @property
+    def focks(self) -> list[np.ndarray]:
+        return [self._f[k] for k in self.slots]
+
+    @property
+    def b(self) -> np.ndarray:
+        """B_ij over the stored vectors in insertion order."""
+        return self._b[np.ix_(self.slots, self.slots)]
+
+    def push(self, fock: np.ndarray, err: np.ndarray) -> None:
+        if self._f is None:
+            self._f = np.empty((self.space,) + fock.shape)
+            self._e = np.empty((self.space, err.size))
+        if len(self.slots) == self.space:
+            slot = self.slots.pop(0)  # overwrite the oldest
+        else:
+            slot = len(self.slots)
+        self.slots.append(slot)
+        self._f[slot] = fock
+        self._e[slot] = err.ravel()
+        n = len(self.slots)  # slots 0..n-1 are in use (filled in order, then overwritten in turn)
+        row = self._e[:n] @ self._e[slot]
+        self._b[slot, :n] = row
+        self._b[:n, slot] = row
+
+    def extrapolate(self) -> np.ndarray:
+        n = len(self.slots)  # the extrapolation does not depend on the order of the vectors
+        bb = self._b[:n, :n]
+        a = np.empty((n + 1, n + 1))
+        scale = np.max(np.abs(bb))
+        a[:n, :n] = bb / scale if scale > 0 else bb
+        a[-1, :] = a[:, -1] = -1.0
+        a[-1, -1] = 0.0
+        rhs = np.zeros(n + 1)
+        rhs[-1] = -1.0
+        last = self._f[self.slots[-1]]
+        try:
+            _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly
+            if info != 0 or not np.all(np.isfinite(coef)) or np.max(np.abs(coef)) > 1e8:
+                raise np.linalg.LinAlgError("singular or ill-conditioned DIIS system")
+        except np.linalg.LinAlgError:
+            try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
+                coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
+            except np.linalg.LinAlgError:
+                return last
+        if not np.all(np.isfinite(coef)):
+            return last
+        return (coef[:n] @ self._f[:n].reshape(n, -1)).reshape(self._f.shape[1:])
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
             use_diis: bool = True, diis_space: int = 8, level_shift: float = 0.0, damping: float = 0.0,
             conv_tol: float = CONV_TOL_ENERGY, conv_tol_grad: float = CONV_TOL_GRAD):
-    """One SCF attempt from a starting density. Returns (converged, iterations, dens)."""
+    """One SCF attempt from a starting density. Returns (converged, iterations, dens).
+
+    Work per iteration: one O(N^2) Fock build, one matrix product for the error, one eigensolve.
+    """
     dens = dens0
     e_old = np.inf
-    focks, errors = [], []
+    diis = _DIIS(diis_space) if use_diis else None
     n = core.shape[0]
+    build = fock_builder(n)
     for it in range(1, max_iter + 1):
-        fock = fock_matrix(core, gamma, dens)
-        e = electronic_energy(core, fock, dens)
-        err = fock @ dens - dens @ fock
-        max_err = float(np.max(np.abs(err)))
-        if abs(e - e_old) < conv_tol and max_err < conv_tol_grad:
+        fock, e = build(core, gamma, dens)
+        err = commutator(fock, dens)
+        max_err = float(err.max())  # FP - PF is antisymmetric: its largest entry is its largest |entry|
+        # the energy test allows for rounding in E (|E| ~ 10^4 eV at 1,000 centres)
+        if abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and max_err < conv_tol_grad:
             return True, it, dens
         e_old = e
         f_use = fock
-        if use_diis:
-            focks.append(fock)
-            errors.append(err)
-            if len(focks) > diis_space:
-                focks.pop(0)
-                errors.pop(0)
-            if len(focks) >= 2:
-                f_use = _diis_extrapolate(focks, errors)
+        if diis is not None:
+            diis.push(fock, err)
+            if len(diis.slots) >= 2:
+                f_use = diis.extrapolate()
         if level_shift:
             f_use = f_use + level_shift * (np.eye(n) - 0.5 * dens)
-        _, c = np.linalg.eigh(f_use)
+        _, c = eigh(f_use)
         new = density(c, n_occ)
         dens = (1.0 - damping) * new + damping * dens if damping else new
     return False, max_iter, dens
@@ -125,7 +208,8 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
 
 def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 100,
            conv_tol: float = CONV_TOL_ENERGY, conv_tol_grad: float = CONV_TOL_GRAD,
-           dens0: np.ndarray | None = None, fallback: bool = True) -> SCFResult:
+           dens0: np.ndarray | None = None, fallback: bool = True,
+           alt_dens0: np.ndarray | None = None, alt_first: bool = False) -> SCFResult:
     """Restricted closed-shell SCF.
 
     Parameters
@@ -136,6 +220,8 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
     max_iter : Fock builds allowed per attempt
     dens0 : optional (N, N) starting density; default: Hueckel-like guess from diagonalising ``core``
     fallback : try level shifting and damping when plain DIIS fails
+    alt_dens0 : optional second starting density (e.g. :func:`ppp.solvers.guess.localized_density`),
+        tried with DIIS when the first start fails, or first when ``alt_first``
 
     The attempts are: DIIS; then level shift 1 eV with damping 0.3 (no DIIS) followed by DIIS from its
     density; then level shift 4 eV with damping 0.5 for four times as many iterations, followed by DIIS.
@@ -148,10 +234,15 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
     if not 0 < n_occ < n:
         raise ValueError(f"n_occ = {n_occ} must lie between 1 and N - 1 = {n - 1}")
     if dens0 is None:
-        _, c0 = np.linalg.eigh(core)
+        _, c0 = eigh(core)
         dens0 = density(c0, n_occ)
     kw = dict(conv_tol=conv_tol, conv_tol_grad=conv_tol_grad)
-    attempts = [("diis", [dict(max_iter=max_iter)])]
+    starts = [("diis", dens0)]
+    if alt_dens0 is not None:
+        alt = ("diis-kekule-start", np.asarray(alt_dens0, dtype=float))
+        starts = [alt, starts[0]] if alt_first else [starts[0], alt]
+    dens0 = starts[0][1]
+    attempts = [(name, [dict(max_iter=max_iter, start=d)]) for name, d in starts]
     if fallback:
         attempts += [
             ("level-shift", [dict(max_iter=max_iter, use_diis=False, level_shift=1.0, damping=0.3),
@@ -163,24 +254,31 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
     dens = dens0
     strategy = "diis"
     converged = False
+    mo_energy = mo_coeff = None
     for strategy, steps in attempts:
         dens = dens0
         converged = False
         for step in steps:
+            step = dict(step)
+            start = step.pop("start", None)
+            if start is not None:
+                dens = start
             converged, it, dens = iterate(core, gamma, n_occ, dens, **step, **kw)
             total += it
-        # the stabilised (shifted, damped) stage only prepares the density; DIIS must confirm it
-        if converged and _is_aufbau(core, gamma, dens, n_occ):
+        # the stabilised (shifted, damped) stage only prepares the density; DIIS must confirm it, and
+        # the lowest n_occ orbitals of F(P) must reproduce P (no hole below the Fermi level)
+        mo_energy, mo_coeff = eigh(fock_matrix(core, gamma, dens))
+        if converged and _is_aufbau(mo_coeff, dens, n_occ):
             break
         converged = False
-    fock = fock_matrix(core, gamma, dens)
-    mo_energy, mo_coeff = np.linalg.eigh(fock)
     if converged:
         # final orbitals from the unshifted Fock matrix; use them to make the returned density exact
         dens = density(mo_coeff, n_occ)
         fock = fock_matrix(core, gamma, dens)
-        mo_energy, mo_coeff = np.linalg.eigh(fock)
-    err = fock @ dens - dens @ fock
+        mo_energy, mo_coeff = eigh(fock)
+    else:
+        fock = fock_matrix(core, gamma, dens)
+    err = commutator(fock, dens)
     return SCFResult(
         converged=bool(converged), iterations=int(total), e_elec=electronic_energy(core, fock, dens),
         mo_energy=mo_energy, mo_coeff=mo_coeff, dens=dens, fock=fock,
@@ -188,7 +286,6 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
     )
 
 
-def _is_aufbau(core, gamma, dens, n_occ, tol=1e-6) -> bool:
-    """True when the lowest n_occ orbitals of F(P) reproduce P (no hole below the Fermi level)."""
-    _, c = np.linalg.eigh(fock_matrix(core, gamma, dens))
-    return bool(np.max(np.abs(density(c, n_occ) - dens)) < tol)
+def _is_aufbau(mo_coeff: np.ndarray, dens: np.ndarray, n_occ: int, tol: float = 1e-6) -> bool:
+    """True when the lowest n_occ orbitals (columns of ``mo_coeff``, eigenvectors of F(P)) reproduce P."""
+    return bool(np.max(np.abs(density(mo_coeff, n_occ) - dens)) < tol)

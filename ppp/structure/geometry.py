@@ -18,9 +18,19 @@ from ..errors import InputError
 
 
 def depiction(mol: Chem.Mol) -> np.ndarray:
-    """2D depiction coordinates of all atoms, (n_atoms, 3), RDKit units (bond ~1.5), z = 0."""
+    """2D depiction coordinates of all atoms, (n_atoms, 3), RDKit units (bond ~1.5), z = 0.
+
+    Always RDKit's own depiction algorithm: RDKit keeps a process-wide switch to its CoordGen
+    alternative, which other code (drawing) may turn on; results must not depend on it, so the switch
+    is set for this call and restored afterwards.
+    """
     work = Chem.Mol(mol)
-    rdDepictor.Compute2DCoords(work, clearConfs=True)
+    previous = rdDepictor.GetPreferCoordGen()
+    try:
+        rdDepictor.SetPreferCoordGen(False)
+        rdDepictor.Compute2DCoords(work, clearConfs=True)
+    finally:
+        rdDepictor.SetPreferCoordGen(previous)
     return np.asarray(work.GetConformer().GetPositions(), dtype=float)
 
 

@@ -1,0 +1,130 @@
+"""``ppp spectrum`` and ``ppp compare`` end to end: files written, numbers consistent, errors one line.
+
+Checks against laws: the curve CSV integrates back to the sum of the f it reports (f-eps relation,
+Mulliken 1939); a spectrum from a record file equals one computed afresh; the compare command fed a
+synthetic measurement made from the molecule's own sticks with a known shift recovers it.
+"""
+import json
+
+import numpy as np
+import pytest
+
+from ppp.cli import main
+from ppp.spectra.lineshapes import LineShape, epsilon
+from ppp.spectra.measured import read_csv
+from ppp.units import EV_CM1, F_PER_INTEGRATED_EPSILON, HC_EV_NM
+
+DYE = "CN(C)c1ccc(cc1)/N=N/c1ccccc1"
+
+
+def _png_ok(path):
+    data = path.read_bytes()
+    return data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 5000
+
+
+def test_spectrum_writes_csv_plot_and_pictures(tmp_path, capsys):
+    out = tmp_path / "dye"
+    assert main(["spectrum", DYE, "--out", str(out), "--pictures", "--json", "--range", "150", "2000",
+                 "--triplets", "0"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    for key in ("curve", "sticks", "plot_svg"):
+        assert (tmp_path / doc["files"][key].split("/")[-1]).exists()
+    for name in ("dye-spectrum.png", "dye-homo.png", "dye-lumo.png", "dye-levels.png", "dye-S1-transition.png",
+                 "dye-S1-charge.png"):
+        assert _png_ok(tmp_path / name), name
+    assert (tmp_path / "dye-spectrum.svg").read_text().lstrip().startswith("<?xml")
+    # the curve file reads back as a spectrum and holds the f of the bands inside the window
+    curve = read_csv(tmp_path / "dye-curve.csv")
+    assert curve.quantity == "epsilon"
+    f_sum = F_PER_INTEGRATED_EPSILON * np.trapezoid(curve.values, curve.wavenumber_cm1)
+    f_sticks = sum(s["f"] for s in doc["sticks"])
+    assert f_sum == pytest.approx(f_sticks, rel=5e-3)
+    # band near 404 nm absorbs violet: the complementary colour seen is yellow to yellow-green (common
+    # practice colour wheel); CIELAB hue of yellow ~ 90-100 deg, yellow-green ~ 100-125 deg
+    assert 80.0 <= doc["colour"]["hue_deg"] <= 125.0
+
+
+def test_spectrum_refuses_to_overwrite(tmp_path, capsys):
+    out = str(tmp_path / "x")
+    assert main(["spectrum", "C=CC=CC=C", "--out", out]) == 0
+    assert main(["spectrum", "C=CC=CC=C", "--out", out]) == 1
+    err = capsys.readouterr().err.strip()
+    assert "--overwrite" in err and len(err.splitlines()) == 1
+    assert main(["spectrum", "C=CC=CC=C", "--out", out, "--overwrite", "--shape", "voigt", "--fwhm", "2000cm-1",
+                 "--axis", "wavenumber"]) == 0
+
+
+def test_spectrum_from_record_equals_fresh_computation(tmp_path, capsys):
+    rec = tmp_path / "r.h5"
+    assert main(["run", DYE, "C=CC=CC=C", "--save", str(rec)]) == 0
+    capsys.readouterr()
+    assert main(["spectrum", "--record", str(rec), "--molecule", "1", "--out", str(tmp_path / "a"),
+                 "--pictures"]) == 0
+    assert main(["spectrum", DYE, "--out", str(tmp_path / "b")]) == 0
+    a = np.loadtxt(tmp_path / "a-curve.csv", delimiter=",", comments="#", skiprows=4)
+    b = np.loadtxt(tmp_path / "b-curve.csv", delimiter=",", comments="#", skiprows=4)
+    assert a == pytest.approx(b, rel=1e-9)
+    # a record of two molecules needs a choice
+    assert main(["spectrum", "--record", str(rec), "--out", str(tmp_path / "c")]) == 1
+    assert "--molecule" in capsys.readouterr().err
+
+
+def test_compare_recovers_a_known_shift(tmp_path, capsys):
+    # synthetic "measured" spectrum from the molecule's own computed bands, shifted by -0.15 eV, scaled,
+    # width 0.38 eV: the fit must return these (law of the fit, not a measurement)
+    assert main(["spectrum", DYE, "--out", str(tmp_path / "s"), "--json"]) == 0
+    sticks = json.loads(capsys.readouterr().out)["sticks"]
+    from ppp.spectra.lineshapes import Sticks
+    st = Sticks([s["energy_ev"] for s in sticks], [s["f"] for s in sticks])
+    wl = np.arange(260.0, 620.0, 0.5)
+    a = 6e-6 * epsilon(HC_EV_NM / wl, st.shifted(-0.15), LineShape("gaussian", 0.38))
+    meas = tmp_path / "m.csv"
+    meas.write_text("wavelength (nm),absorbance\n" + "\n".join(f"{x},{y:.8g}" for x, y in zip(wl, a)) + "\n")
+    assert main(["compare", DYE, "-m", str(meas), "--out", str(tmp_path / "c"), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    fit = doc["fit"]
+    assert fit["shift_ev"] == pytest.approx(-0.15, rel=0.01)
+    assert fit["scale"] == pytest.approx(6e-6, rel=0.01)
+    assert fit["fwhm_ev"] == pytest.approx(0.38, rel=0.01)
+    assert fit["shift_cm1"] == pytest.approx(-0.15 * EV_CM1, rel=0.01)
+    assert fit["similarity_after"]["pearson"] > 0.999
+    assert doc["colour_measured"]["hex"].startswith("#")
+    assert _png_ok(tmp_path / "c-compare.png")
+    # the text report names the fitted values
+    assert main(["compare", DYE, "-m", str(meas), "--out", str(tmp_path / "d"), "--fix-width", "--fwhm", "0.38"]) == 0
+    text = capsys.readouterr().out
+    assert "energy shift" in text and "-0.150" in text and "(fixed)" in text
+
+
+def test_compare_with_shipped_demo_file(tmp_path, capsys):
+    import ppp
+    from pathlib import Path
+    demo = Path(ppp.__file__).parent / "data" / "demo_azo_dye_absorbance.jdx"
+    assert main(["compare", DYE, "-m", str(demo), "--out", str(tmp_path / "demo"), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["fit"]["converged"]
+    assert doc["fit"]["similarity_after"]["pearson"] > doc["fit"]["similarity_before"]["pearson"]
+
+
+@pytest.mark.parametrize("content,words", [
+    ("wavelength (furlongs),absorbance\n1,2\n2,3\n3,4\n4,5\n5,6\n", "unknown unit"),
+    ("wavelength (nm),absorbance\n", "no data"),
+    ("wavelength (nm),absorbance\n400,1\n300,2\n350,3\n320,1\n310,1\n", "monotonic"),
+])
+def test_compare_bad_measured_file_is_one_line(tmp_path, capsys, content, words):
+    p = tmp_path / "bad.csv"
+    p.write_text(content)
+    assert main(["compare", "C=CC=CC=C", "-m", str(p), "--out", str(tmp_path / "o")]) == 1
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and err.startswith("error: ") and words in err
+
+
+def test_bad_options_are_one_line_errors(tmp_path, capsys):
+    for argv in (["spectrum", "--out", str(tmp_path / "n")],
+                 ["spectrum", "C=C", "--out", str(tmp_path / "n"), "--fwhm", "wide"],
+                 ["spectrum", "C=CC=C", "--out", str(tmp_path / "n"), "--vibronic", "--huang-rhys", "-2"],
+                 ["spectrum", "--record", str(tmp_path / "none.h5"), "--out", str(tmp_path / "n")],
+                 ["spectrum", "C=CC=C", "--out", str(tmp_path / "missing" / "n")]):
+        assert main(argv) == 1, argv
+        err = capsys.readouterr().err.strip()
+        assert len(err.splitlines()) == 1 and err.startswith("error: "), err

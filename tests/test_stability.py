@@ -1,0 +1,83 @@
+"""Following an internal instability of the closed-shell SCF (Seeger & Pople 1977).
+
+Outside reference: PySCF's own RHF internal stability analysis (``mf.stability()``) and an RHF
+restarted from its rotated orbitals, on the very same model Hamiltonian.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from pyscf import lib
+from threadpoolctl import threadpool_limits
+
+import ppp
+from ppp.solvers import scf, stability
+
+from conftest import model_of
+from test_reference_pyscf import pyscf_rhf
+
+HEPTACENE = "c1ccc2cc3cc4cc5cc6cc7ccccc7cc6cc5cc4cc3cc2c1"
+
+
+@pytest.fixture(autouse=True, scope="module")
+def _one_thread():
+    old = lib.num_threads()
+    lib.num_threads(1)
+    with threadpool_limits(limits=1):
+        yield
+    lib.num_threads(old)
+
+
+def test_hessian_matches_finite_difference_of_the_energy():
+    """kappa^T (A+B) kappa is the second derivative of E along a real orbital rotation (definition)."""
+    m = model_of("c1ccncc1")
+    r = scf.kernel(m.core, m.gamma, m.n_occ)
+    h = stability.real_hessian(r.mo_energy, r.mo_coeff, m.gamma, m.n_occ)
+    rng = np.random.default_rng(11)
+    kappa = rng.normal(size=(m.n_occ, m.n_centres - m.n_occ))
+    kappa /= np.linalg.norm(kappa)
+
+    def energy(t):
+        c = stability.rotate(r.mo_coeff, m.n_occ, t * kappa)
+        p = scf.density(c, m.n_occ)
+        return scf.electronic_energy(m.core, scf.fock_matrix(m.core, m.gamma, p), p)
+
+    t = 1e-3
+    second = (energy(t) - 2 * energy(0.0) + energy(-t)) / t**2
+    # closed shell, both spins rotated by t*kappa: E(t) = E0 + 2 t^2 kappa^T (A+B) kappa + O(t^3)
+    assert np.isclose(second, 4.0 * kappa.ravel() @ h @ kappa.ravel(), rtol=1e-4)
+
+
+def test_heptacene_saddle_point_is_followed_to_pyscf_minimum():
+    m = model_of(HEPTACENE)
+    first = scf.kernel(m.core, m.gamma, m.n_occ)
+    w, _ = stability.lowest_mode(first.mo_energy, first.mo_coeff, m.gamma, m.n_occ)
+    assert w < -1e-3  # the symmetric SCF solution is a saddle point
+    followed = stability.follow(m.core, m.gamma, m.n_occ, first)
+    assert followed is not None and followed.converged
+    w2, _ = stability.lowest_mode(followed.mo_energy, followed.mo_coeff, m.gamma, m.n_occ)
+    assert w2 > 0
+
+    mf = pyscf_rhf(m, dm0=first.dens)  # PySCF confirms the saddle point is an SCF solution ...
+    assert np.isclose(mf.e_tot, first.e_elec + m.e_core, atol=1e-6)
+    for _ in range(4):
+        mo, _, stable, _ = mf.stability(return_status=True)
+        if stable:
+            break
+        dm = mf.make_rdm1(mo, mf.mo_occ)
+        mf.kernel(dm)
+    assert np.isclose(followed.e_elec + m.e_core, mf.e_tot, atol=1e-6)
+
+
+def test_stable_solution_is_returned_unchanged():
+    m = model_of("c1ccc2ccccc2c1")
+    r = scf.kernel(m.core, m.gamma, m.n_occ)
+    assert stability.follow(m.core, m.gamma, m.n_occ, r) is r
+
+
+def test_driver_reports_followed_solution_and_refuses_when_following_fails(monkeypatch):
+    res = ppp.compute(HEPTACENE, n_singlets=3, n_triplets=3)
+    assert res.s1.energy_ev > 0
+    monkeypatch.setattr(stability, "follow", lambda *a, **k: None)
+    with pytest.raises(ppp.UnsupportedError, match="unstable"):
+        ppp.compute(HEPTACENE)
