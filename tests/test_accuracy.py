@@ -23,11 +23,14 @@ REF = Path(__file__).parent / "data" / "reference_absorption.csv"
 
 TARGET_EV = {"all": 0.20, "hydrocarbon": 0.12, "cyanine": 0.12, "any class": 0.35}
 
-#: Achieved today by the registry default (classic: textbook values, fixed beta, planar geometry);
-#: recomputed below. Every entry above its target is a missed target (see docs/accuracy.md).
-CLASSIC_BOUND_EV = {"all": 0.30, "hydrocarbon": 0.32, "cyanine": 0.27, "any class": 0.52}
-#: Achieved by classic with bond-order-dependent beta (no value fitted).
-CLASSIC_BO_BOUND_EV = {"all": 0.26, "hydrocarbon": 0.18, "cyanine": 0.27, "any class": 0.44}
+#: Achieved today by the registry default (classic: textbook values, bond-order-dependent beta on as set
+#: in parameters/classic.toml, planar geometry); recomputed below. Measured 2026-12-02 by
+#: benchmarks/accuracy.py: all 0.251, hydrocarbon 0.172, cyanine 0.261, worst class 0.432 (coumarin) eV.
+#: Every entry above its target is a missed target (see docs/accuracy.md).
+CLASSIC_BOUND_EV = {"all": 0.26, "hydrocarbon": 0.18, "cyanine": 0.27, "any class": 0.44}
+#: Achieved by classic with bond-order beta switched off (fixed beta per bond type, the textbook model;
+#: measured: all 0.293, hydrocarbon 0.314, cyanine 0.265, worst class 0.508 (polyene) eV).
+CLASSIC_FIXED_BOUND_EV = {"all": 0.30, "hydrocarbon": 0.32, "cyanine": 0.27, "any class": 0.52}
 
 
 @pytest.fixture(scope="module")
@@ -58,7 +61,7 @@ def classic_errors(ref):
 
 
 def test_classic_set_per_class_error(classic_errors):
-    # classic is the registry default today: these are the "default settings" figures
+    # classic is the registry default (bond-order beta on): these are the "default settings" figures
     _check(classic_errors, CLASSIC_BOUND_EV)
 
 
@@ -70,10 +73,11 @@ def test_classic_uncertainty_table_is_its_measured_error(classic_errors):
 
 
 def test_bond_order_beta_lowers_the_error(ref, classic_errors):
-    by = _errors(ref, "classic", bond_order_beta=True)
-    _check(by, CLASSIC_BO_BOUND_EV)
-    assert by["all"].mae_ev < classic_errors["all"].mae_ev
-    assert by["polyene"].mae_ev < 0.5 * classic_errors["polyene"].mae_ev  # bond alternation of polyenes
+    # the reason bond-order beta is on by default (issue: "on by default if it helps the measured error")
+    fixed = _errors(ref, "classic", bond_order_beta=False)
+    _check(fixed, CLASSIC_FIXED_BOUND_EV)
+    assert classic_errors["all"].mae_ev < fixed["all"].mae_ev
+    assert classic_errors["polyene"].mae_ev < 0.5 * fixed["polyene"].mae_ev  # bond alternation of polyenes
 
 
 def test_dye_set_training_error_matches_its_provenance_and_cv_meets_overall_target(ref):

@@ -76,8 +76,14 @@ def test_stable_solution_is_returned_unchanged():
 
 
 def test_driver_reports_followed_solution_and_refuses_when_following_fails(monkeypatch):
-    res = ppp.compute(HEPTACENE, n_singlets=3, n_triplets=3)
+    # Fixed beta explicitly: the saddle point followed here is the one of the table-beta model that
+    # PySCF confirms above (model_of builds that model). With bond-order beta (the default) the iterated
+    # heptacene solution has a positive real-rotation Hessian (0.26 eV) but a negative lowest CIS singlet
+    # (-0.27 eV), an instability towards complex orbitals that following along real rotations cannot
+    # remove, so the default refuses heptacene with UnsupportedError (measured; open question, see
+    # docs/accuracy.md).
+    res = ppp.compute(HEPTACENE, n_singlets=3, n_triplets=3, bond_order_beta=False)
     assert res.s1.energy_ev > 0
     monkeypatch.setattr(stability, "follow", lambda *a, **k: None)
     with pytest.raises(ppp.UnsupportedError, match="unstable"):
-        ppp.compute(HEPTACENE)
+        ppp.compute(HEPTACENE, bond_order_beta=False)

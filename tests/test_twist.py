@@ -12,7 +12,7 @@ from ppp.errors import InputError
 from ppp.model import params
 from ppp.structure.readers import mol_from_smiles
 from ppp.structure.twist import embed_conformer, p_axis, twist_factors
-from ppp.units import COULOMB_EV_ANGSTROM
+from ppp.units import BOHR_ANGSTROM, COULOMB_EV_ANGSTROM
 
 
 def test_p_axis_is_plane_normal():
@@ -44,11 +44,22 @@ def _tetramethylethylene(theta_deg: float, r_cc: float = 1.34) -> Chem.Mol:
     return mol
 
 
+def _slater_2p_pi_overlap(r_angstrom: float, zeta: float = 1.625) -> float:
+    """2p-pi Slater overlap S = e^-rho (1 + rho + 2 rho^2/5 + rho^3/15), rho = zeta r / a0 (Mulliken,
+    Rieke, Orloff & Orloff 1949; from memory)."""
+    rho = zeta * r_angstrom / BOHR_ANGSTROM
+    return float(np.exp(-rho) * (1.0 + rho + 0.4 * rho ** 2 + rho ** 3 / 15.0))
+
+
+@pytest.mark.parametrize("bond_order_beta", [False, None], ids=["fixed-beta", "default"])
 @pytest.mark.parametrize("theta", [0.0, 30.0, 60.0, 75.0])
-def test_two_centre_twisted_hand_worked_case(theta):
+def test_two_centre_twisted_hand_worked_case(theta, bond_order_beta):
     # Two pi centres, beta_eff = beta cos(theta) (Mulliken 1949); CIS by hand for a two-centre,
     # two-electron system: E(S1) = -2 beta_eff + (g11 - g12) / 2 with Mataga-Nishimoto g12 at the
     # input C=C distance (1.34 A, 3D coordinates are used as given).
+    # With bond-order beta (the default for classic) the twist multiplies the table beta and the bond
+    # order of a two-centre, two-electron system is P_12 = 1 for any beta, so r = 1.520 - 0.186 = 1.334 A
+    # and beta_eff = beta cos(theta) S(1.334) / S(1.397) (constants of parameters/classic.toml).
     classic = params.load("classic")
     b0, u = classic.beta[("C", "C")], classic.types["C"].u_ev
     g12 = COULOMB_EV_ANGSTROM / (1.34 + COULOMB_EV_ANGSTROM / u)
@@ -56,8 +67,11 @@ def test_two_centre_twisted_hand_worked_case(theta):
     # beyond about 50 deg the RHF triplet is unstable (E(T1) < 0 by the same formula), so triplets are
     # only asked for below that
     n_t = 1 if theta < 45 else 0
-    res = ppp.compute(mol, name="tme", coordinates="input", n_singlets=1, n_triplets=n_t)
+    res = ppp.compute(mol, name="tme", coordinates="input", n_singlets=1, n_triplets=n_t,
+                      bond_order_beta=bond_order_beta)
     beta = b0 * np.cos(np.radians(theta))
+    if bond_order_beta is None:
+        beta *= _slater_2p_pi_overlap(1.334) / _slater_2p_pi_overlap(1.397)
     assert res.s1.energy_ev == pytest.approx(-2 * beta + 0.5 * (u - g12), abs=1e-8)
     if n_t:
         assert res.t1.energy_ev == pytest.approx(-2 * beta - 0.5 * (u - g12), abs=1e-8)

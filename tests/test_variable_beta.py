@@ -36,11 +36,27 @@ def test_bond_length_bond_order_relation():
     assert vb.beta_factor(1.497, ex) == pytest.approx(np.exp(-0.1 / 0.3), rel=1e-12)
 
 
-def test_switched_off_reproduces_fixed_beta():
+def _classic_without_bond_order_table() -> str:
+    """classic.toml's text with its [bond_order_beta] table cut out (the table is one block of lines
+    ending at a blank line)."""
+    text = params.load("classic").text
+    start = text.index("[bond_order_beta]\n")
+    end = text.index("\n\n", start)
+    return text[:start] + text[end + 2:]
+
+
+def test_switched_off_reproduces_fixed_beta(tmp_path):
+    # classic has bond-order beta on; the same set with its [bond_order_beta] table removed is the
+    # fixed-beta model, which the explicit switch must reproduce exactly
+    p = tmp_path / "classic_fixed.toml"
+    p.write_text(_classic_without_bond_order_table())
+    assert params.load(str(p)).bond_order_beta_enabled is False
     smi = "C=CC=CC=CC=C"
     off = ppp.compute(smi, bond_order_beta=False, n_triplets=2)
-    fixed = ppp.compute(smi, n_triplets=2)  # classic has no [bond_order_beta]: fixed beta
+    fixed = ppp.compute(smi, parameters=str(p), n_triplets=2)
+    on = ppp.compute(smi, n_triplets=2)  # the default: bond-order beta on
     assert [s.energy_ev for s in off.states] == pytest.approx([s.energy_ev for s in fixed.states], abs=1e-12)
+    assert abs(on.s1.energy_ev - off.s1.energy_ev) > 0.05
 
 
 def test_zero_slope_scheme_reduces_to_fixed_beta():
@@ -95,11 +111,11 @@ def test_iteration_failure_is_reported():
 def test_bad_settings_rejected(tmp_path):
     with pytest.raises(ParameterError, match="law"):
         vb.BondOrderBeta(law="linear")
-    text = params.load("classic").text + '\n[bond_order_beta]\nenabled = true\npairs = ["C-Xx"]\n'
+    text = _classic_without_bond_order_table() + '\n[bond_order_beta]\nenabled = true\npairs = ["C-Xx"]\n'
     p = tmp_path / "bad.toml"
     p.write_text(text)
     with pytest.raises(ParameterError, match="undefined type"):
         params.load(str(p))
-    p.write_text(params.load("classic").text + '\n[bond_order_beta]\nslope = 1\n')
+    p.write_text(_classic_without_bond_order_table() + '\n[bond_order_beta]\nslope = 1\n')
     with pytest.raises(ParameterError, match="unknown key"):
         params.load(str(p))
