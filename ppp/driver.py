@@ -271,22 +271,61 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
         return _solve_model(model, options, index, atom_indices, timer, dens_guess)
 
 
-def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> ChromophoreResult:
-    with maybe_stage(timer, "SCF"):
-        model, scf = ground_scf(model, options, index, dens_guess=dens_guess)
+def _singlets(scf, model, options, timer) -> cis_solver.CISResult:
     with maybe_stage(timer, "CIS singlets"):
-        sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
+        return cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
                                  solver=options.cis_solver, dipole_coords=model.coords)
-    if len(sing.energies) and sing.energies[0] <= 0.0:
-        # the SCF may sit on a saddle point: follow the instability to a lower closed-shell minimum
-        with maybe_stage(timer, "stability following"):
-            stable = stability.follow(model.core, model.gamma, model.n_occ, scf, max_iter=options.max_iter)
+
+
+def _unstable(sing: cis_solver.CISResult) -> bool:
+    return bool(len(sing.energies) and sing.energies[0] <= 0.0)
+
+
+def _seek_stable(model0: Model, model: Model, scf, sing, options, index, timer):
+    """Look for a stable closed-shell solution when the lowest CIS singlet is not positive.
+
+    Fixed beta: follow the instability downhill along real orbital rotations (Seeger & Pople 1977).
+    Bond-order beta: a followed solution no longer belongs to the betas it was found with, so the beta
+    iteration is restarted from it; and because the iteration can settle on a solution that is a minimum
+    along real rotations yet has a negative CIS root (an instability towards complex orbitals, which real
+    following cannot cure; seen for heptacene), it is also restarted from the followed solution of the
+    fixed-beta (table) model. The first restart whose result has no non-positive CIS singlet is kept.
+    Returns (model, scf, singlets), unchanged when nothing better is found.
+    """
+    with maybe_stage(timer, "stability following"):
+        stable = stability.follow(model.core, model.gamma, model.n_occ, scf, max_iter=options.max_iter)
+    if model0.bond_order_beta is None:
         if stable is not None and stable is not scf:
             scf = stable
-            with maybe_stage(timer, "CIS singlets"):
-                sing = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ,
-                                         options.n_singlets, 1, solver=options.cis_solver,
-                                         dipole_coords=model.coords)
+            sing = _singlets(scf, model, options, timer)
+        return model, scf, sing
+    starts = [stable.dens] if stable is not None and stable is not scf else []
+    with maybe_stage(timer, "stability following"):
+        fixed = scf_solver.kernel(model0.core, model0.gamma, model0.n_occ, max_iter=options.max_iter)
+        if fixed.converged:
+            fixed = stability.follow(model0.core, model0.gamma, model0.n_occ, fixed, max_iter=options.max_iter)
+            if fixed is not None:
+                starts.append(fixed.dens)
+    for dens0 in starts:
+        try:
+            with maybe_stage(timer, "SCF"):
+                m2, s2 = ground_scf(model0, options, index, dens0=dens0)
+        except ConvergenceError:
+            continue
+        sing2 = _singlets(s2, m2, options, timer)
+        if not _unstable(sing2):
+            return m2, s2, sing2
+    return model, scf, sing
+
+
+def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> ChromophoreResult:
+    model0 = model
+    with maybe_stage(timer, "SCF"):
+        model, scf = ground_scf(model0, options, index, dens_guess=dens_guess)
+    sing = _singlets(scf, model, options, timer)
+    if _unstable(sing):
+        # the SCF may sit on a saddle point: look for a lower, stable closed-shell solution
+        model, scf, sing = _seek_stable(model0, model, scf, sing, options, index, timer)
     # A non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus 1967
     # instability). Singlet instability that cannot be followed to a minimum: the closed-shell ground
     # state itself is wrong (biradical character), so the molecule is refused. Triplet instability
