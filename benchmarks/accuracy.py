@@ -132,8 +132,8 @@ def main(argv=None) -> int:
 
 
 def class_fits(ref, k_max: int) -> None:
-    """For each class: default-settings error, then ppp fit on the class with k-fold CV, once with the
-    default's fixed beta and once with bond-order beta switched on (ppp fit --bond-order-beta on)."""
+    """For each class: default-settings error, then ppp fit on the class with k-fold CV, once with fixed
+    beta (ppp fit --bond-order-beta off) and once with bond-order beta on (ppp fit --bond-order-beta on)."""
     name = params.default_name()
     pset = params.load(name)
     base_opts = Options(parameters=name, n_triplets=0)
