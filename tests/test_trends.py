@@ -23,7 +23,7 @@ def _one_thread():
 
 
 #: Generous tolerance for a PPP-CIS band against experiment, eV. CIS on a minimal pi basis with
-#: fixed textbook parameters is commonly quoted as good to a few tenths of an eV for pi -> pi*
+#: textbook parameters is commonly quoted as good to a few tenths of an eV for pi -> pi*
 #: bands of aromatics and dyes (common practice).
 TOL_EV = 0.6
 
