@@ -13,7 +13,7 @@ from . import __version__
 from .errors import PPPError
 
 #: Subcommand modules, in the order ``ppp --help`` lists them.
-COMMANDS = ["run", "parameters", "batch", "export", "merge", "salvage"]
+COMMANDS = ["run", "parameters", "batch", "demo", "export", "merge", "salvage"]
 
 
 def build_parser() -> argparse.ArgumentParser:

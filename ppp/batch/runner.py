@@ -67,6 +67,7 @@ class BatchSummary:
     complete: bool = False
     interrupted: bool = False
     workers: str = ""
+    startup_seconds: float = 0.0  # from the start until the first result arrived (workers starting up)
 
     def lines(self) -> list[str]:
         total = sum(self.counts.values())
@@ -309,6 +310,8 @@ def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary
             for fut in backend.wait(pending, timeout=0.25):
                 seq = pending.pop(fut)
                 res = fut.result()
+                if not summary.startup_seconds:
+                    summary.startup_seconds = time.perf_counter() - t0
                 ready[seq] = res
                 if len(res):
                     t = res.seconds / len(res)
