@@ -109,7 +109,7 @@ def test_truncated_files_are_refused_clearly(clean, tmp_path, cli):
     inp, ref = clean
     data = ref.read_bytes()
     rng = np.random.default_rng(77)
-    offsets = sorted({0, 7, 30, 100} | set(rng.integers(200, len(data) - 1, 12).tolist()))
+    offsets = sorted({0, 7, 30, 100} | set(rng.integers(200, len(data) - 1, 8).tolist()))
     for off in offsets:
         cut = tmp_path / f"cut{off}.h5"
         cut.write_bytes(data[:off])
@@ -121,7 +121,7 @@ def test_truncated_files_are_refused_clearly(clean, tmp_path, cli):
         code, _, stderr = cli("export", cut, "-o", tmp_path / f"cut{off}.csv")
         assert code == 1 and stderr.startswith("error:") and len(stderr.strip().splitlines()) == 1
         # salvage never crashes: it recovers a prefix of the clean rows, or says there is nothing
-        code, out, stderr = cli("salvage", cut, "-o", tmp_path / f"saved{off}.h5")
+        code, out, stderr = cli("salvage", cut, "-o", tmp_path / f"saved{off}.h5", "--stall-timeout", "3")
         assert code in (0, 1), stderr
         if code == 0:
             with ResultsFile(tmp_path / f"saved{off}.h5") as rf, ResultsFile(ref) as r0:
@@ -138,7 +138,7 @@ def test_salvaged_file_resumes_to_the_clean_result(clean, tmp_path):
     cut = tmp_path / "cut.h5"
     cut.write_bytes(data[: int(len(data) * 0.9)])
     saved = tmp_path / "saved.h5"
-    got, claimed = salvage(cut, saved)
+    got, claimed = salvage(cut, saved, stall_seconds=5)
     assert 0 <= got <= claimed == n_rows(ref)
     assert run(inp, saved, jobs=2).complete
     assert_same_results(ref, saved, ignore_attrs=())

@@ -58,12 +58,10 @@ class ResultsFile:
                 raise _damaged(self.path, _first_line(str(exc2))) from None
             self.interrupted = True
         try:
-            try:
-                self.attrs = {k: _plain(v) for k, v in self.h5.attrs.items()}
-            except _READ_ERRORS:
-                if not salvaging:
-                    raise
+            if salvaging:  # the creation-time copy, written near the start of the file
                 self.attrs = json.loads(self.h5["provenance"][()].tobytes().decode())
+            else:
+                self.attrs = {k: _plain(v) for k, v in self.h5.attrs.items()}
             if self.attrs.get("format") != S.FORMAT:
                 raise StorageError(f"'{self.path}' is not a ppp batch results file")
             if int(self.attrs.get("format_version", 0)) > S.FORMAT_VERSION:
@@ -271,19 +269,74 @@ def _padded_copy(path: Path, tmpdir: Path) -> Path:
     return out
 
 
-def salvage(path: str | Path, out: str | Path, overwrite: bool = False) -> tuple[int, int]:
+def salvage(path: str | Path, out: str | Path, overwrite: bool = False,
+            stall_seconds: float = 60.0) -> tuple[int, int]:
     """Copy every readable committed block of a damaged results file into a new file.
 
     Returns (molecules recovered, molecules the commit log claims). The new file keeps the original's
     provenance and is marked incomplete, so that running the same batch command on it resumes.
+
+    The HDF5 library can loop forever on some kinds of damaged metadata, so the reading runs in a
+    child process that reports progress; if it makes none for ``stall_seconds`` it is stopped and the
+    file is declared damaged beyond salvage.
     """
-    from .store import ResultsWriter  # local import: the writer imports this module's siblings
+    import multiprocessing
+    import time
 
     path, out = Path(path), Path(out)
     if out.exists() and not overwrite:
         raise StorageError(f"'{out}' exists; add --overwrite to replace it")
     if out.resolve() == path.resolve():
         raise StorageError("salvage needs a new output file, not the damaged file itself")
+    if not path.is_file():
+        raise StorageError(f"results file '{path}' does not exist")
+    ctx = multiprocessing.get_context("spawn")
+    beat = ctx.Value("d", time.monotonic(), lock=False)
+    parent_end, child_end = ctx.Pipe(duplex=False)
+    proc = ctx.Process(target=_salvage_child, args=(str(path), str(out), beat, child_end), daemon=True)
+    proc.start()
+    child_end.close()
+    result = None
+    while True:
+        if parent_end.poll(0.05):
+            try:
+                result = parent_end.recv()
+            except EOFError:
+                result = None
+            break
+        if not proc.is_alive():
+            break
+        if time.monotonic() - beat.value > stall_seconds:
+            proc.kill()
+            proc.join()
+            Path(out.with_name(f".{out.name}.salvage.tmp")).unlink(missing_ok=True)
+            raise StorageError(f"'{path}' is damaged beyond salvage (reading it made no progress for "
+                               f"{stall_seconds:g} s: the HDF5 metadata is corrupt)")
+    proc.join()
+    if result is None:
+        raise StorageError(f"'{path}' is damaged beyond salvage (the reading process failed)")
+    if result[0] == "error":
+        raise StorageError(result[1])
+    return result[1], result[2]
+
+
+def _salvage_child(path: str, out: str, beat, conn) -> None:
+    import time
+
+    def heartbeat():
+        beat.value = time.monotonic()
+    try:
+        got = _salvage(Path(path), Path(out), heartbeat)
+        conn.send(("ok",) + got)
+    except StorageError as exc:
+        conn.send(("error", str(exc)))
+    except Exception as exc:  # reported to the parent as one line
+        conn.send(("error", f"'{path}' is damaged beyond salvage ({type(exc).__name__}: {exc})"))
+    conn.close()
+
+
+def _salvage(path: Path, out: Path, heartbeat) -> tuple[int, int]:
+    from .store import ResultsWriter  # local import: the writer imports this module's siblings
     with tempfile.TemporaryDirectory(prefix="ppp-salvage-") as td:
         try:
             src = ResultsFile(path, salvaging=True)
@@ -316,6 +369,7 @@ def salvage(path: str | Path, out: str | Path, overwrite: bool = False) -> tuple
                         chunk = src.chunk(start, stop)
                     except StorageError:
                         break
+                    heartbeat()
                     writer.add(chunk)
                     writer.commit()
                     recovered = stop
@@ -324,3 +378,30 @@ def salvage(path: str | Path, out: str | Path, overwrite: bool = False) -> tuple
                 writer.close(complete=False)
         tmp.replace(out)
     return recovered, claimed
+
+
+def rewrite(path: str | Path, rows: int = 65536) -> None:
+    """Rewrite a results file compactly: its committed rows into a fresh file, swapped in atomically.
+
+    Appending block by block leaves superseded copies of partly filled chunks behind in the file;
+    this is run when a batch completes (and to take over the rows of a killed run). The attributes,
+    timestamps and history included, are carried over unchanged.
+    """
+    from .store import LIBVER, ResultsWriter
+
+    path = Path(path)
+    tmp = path.with_name(f".{path.name}.rewrite.tmp")
+    with ResultsFile(path) as src:
+        attrs = dict(src.attrs)
+        text = src.h5["parameter_file"][()].tobytes().decode()
+        writer = ResultsWriter.create(tmp, {k: v for k, v in attrs.items() if k not in ("format", "format_version")},
+                                      text)
+        try:
+            for chunk in src.iter_chunks(rows=rows):
+                writer.add(chunk)
+                writer.commit()
+        finally:
+            writer.close(complete=False)
+    with h5py.File(tmp, "r+", libver=LIBVER) as h5:
+        h5.attrs.update(attrs)
+    tmp.replace(path)

@@ -24,7 +24,7 @@ from ..errors import InputError, PPPError, StorageError
 from ..model import params as param_registry
 from . import inputs
 from .progress import Progress
-from .reader import ResultsFile
+from .reader import ResultsFile, rewrite
 from .store import ResultsWriter, now_utc
 from .worker import compute_chunk
 
@@ -52,7 +52,7 @@ class BatchConfig:
     scheduler: str | None = None  # Dask scheduler address, or "local" to start a loopback cluster
     overwrite: bool = False
     block_size: int = 1000  # molecules per committed block
-    block_seconds: float = 10.0  # commit at least this often
+    block_seconds: float = 30.0  # commit at least this often
     progress: bool | None = None  # None: only when stderr is a terminal
 
 
@@ -152,18 +152,9 @@ def _open_output(cfg: BatchConfig, ident: dict, attrs: dict, pset) -> tuple[Resu
             if rf.complete:
                 return None, rf.n_rows
             done, interrupted, committed = rf.n_rows, rf.interrupted, rf.committed
-            if interrupted:
-                # killed writer: copy its committed rows into a fresh file, then swap it in
-                tmp = out.with_name(f".{out.name}.resume.tmp")
-                keep = {k: v for k, v in rf.attrs.items() if k not in ("format", "format_version", "status",
-                                                                        "finished")}
-                w = ResultsWriter.create(tmp, keep, pset.text)
-                for chunk in rf.iter_chunks(rows=8192):
-                    w.add(chunk)
-                    w.commit()
-                w.close(complete=False)
         if interrupted:
-            os.replace(tmp, out)
+            # killed writer: copy its committed rows into a fresh file, swapped in atomically
+            rewrite(out)
             with ResultsFile(out) as rf2:
                 committed = rf2.committed
         return ResultsWriter.append_to(out, committed), done
@@ -235,6 +226,8 @@ def run_batch(cfg: BatchConfig, stream=None) -> BatchSummary:
     k, n = cfg.shard
     if not (n >= 1 and 1 <= k <= n):
         raise InputError(f"--shard must be K/N with 1 <= K <= N, got {k}/{n}")
+    if not cfg.input.is_file():
+        raise InputError(f"input file '{cfg.input}' does not exist")
     pset = param_registry.load(cfg.options.parameters)
     input_sha = inputs.file_sha256(cfg.input)
     expected = sum(1 for _ in _shard_items(cfg))
@@ -287,7 +280,7 @@ def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary
     summary.workers = backend.label
     progress = Progress(expected, stream, enabled=cfg.progress, start=done)
     window = 2 * backend.jobs + 2
-    chunk_size, per_mol = 4, None
+    chunk_size, per_mol = 2, None
     target = 0.5 if cfg.scheduler else 0.25  # seconds of work per chunk
     pending: dict = {}  # future -> sequence number
     ready: dict = {}  # sequence number -> ChunkResult
@@ -316,7 +309,7 @@ def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary
                 if len(res):
                     t = res.seconds / len(res)
                     per_mol = t if per_mol is None else 0.7 * per_mol + 0.3 * t
-                    chunk_size = int(min(512, max(4, target / max(per_mol, 1e-5))))
+                    chunk_size = int(min(512, max(1, target / max(per_mol, 1e-5))))
             while next_write in ready:
                 res = ready.pop(next_write)
                 writer.add(res)
@@ -330,16 +323,21 @@ def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary
             progress.show()
     except KeyboardInterrupt:
         interrupted = True
-    except BaseException:
+    except BaseException as exc:
         progress.finish()
         backend.close(cancel=True)
         writer.close(complete=False, run_record=_record(t0, backend, summary))
+        if isinstance(exc, cf.process.BrokenProcessPool):
+            raise PPPError("a worker process stopped unexpectedly (out of memory, or killed); the results "
+                           "written so far are kept: run the same command again to continue") from None
         raise
     progress.finish()
     backend.close(cancel=interrupted)
     summary.wall_seconds = time.perf_counter() - t0
     complete = not interrupted and done + summary.written == expected
     writer.close(complete=complete, run_record=_record(t0, backend, summary))
+    if complete:
+        rewrite(cfg.output)
     with ResultsFile(cfg.output) as rf:
         summary.counts = _counts(rf)
     summary.complete, summary.interrupted = complete, interrupted

@@ -64,6 +64,19 @@ def _create_datasets(h5: h5py.File, heavy: bool) -> None:
     log.attrs["columns"] = json.dumps(["block"] + S.dataset_paths(heavy) + ["check"])
 
 
+def _new_file(path: Path) -> h5py.File:
+    """New HDF5 file in the 1.10 format whose root attributes stay in the (checksummed) root object
+    header instead of moving to dense storage after 8 of them: a damaged file then fails its
+    checksums rather than sending attribute iteration into corrupt heap blocks."""
+    fapl = h5py.h5p.create(h5py.h5p.FILE_ACCESS)
+    fapl.set_libver_bounds(h5py.h5f.LIBVER_V110, h5py.h5f.LIBVER_V110)
+    fapl.set_fclose_degree(h5py.h5f.CLOSE_STRONG)
+    fcpl = h5py.h5p.create(h5py.h5p.FILE_CREATE)
+    fcpl.set_attr_phase_change(64, 48)
+    fid = h5py.h5f.create(str(path).encode(), h5py.h5f.ACC_TRUNC, fcpl=fcpl, fapl=fapl)
+    return h5py.File(fid)
+
+
 class ResultsWriter:
     """Appends :class:`~ppp.batch.worker.ChunkResult` objects in input order; the only writer.
 
@@ -92,7 +105,7 @@ class ResultsWriter:
         """New file at ``path`` (replaced if present: the caller checks permission)."""
         path = Path(path)
         try:
-            h5 = h5py.File(path, "w", libver=LIBVER)
+            h5 = _new_file(path)
             h5.attrs.update({"format": S.FORMAT, "format_version": S.FORMAT_VERSION, "status": "running",
                              "created": now_utc(), "finished": "", "history": "[]"})
             h5.attrs.update(attrs)
