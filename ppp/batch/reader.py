@@ -62,6 +62,8 @@ class ResultsFile:
                 self.attrs = json.loads(self.h5["provenance"][()].tobytes().decode())
             else:
                 self.attrs = {k: _plain(v) for k, v in self.h5.attrs.items()}
+                if "run" in self.h5:
+                    self.attrs.update({k: _plain(v) for k, v in self.h5["run"].attrs.items()})
             if self.attrs.get("format") != S.FORMAT:
                 raise StorageError(f"'{self.path}' is not a ppp batch results file")
             if int(self.attrs.get("format_version", 0)) > S.FORMAT_VERSION:
@@ -69,7 +71,14 @@ class ResultsFile:
                                    f"this ppp reads up to {S.FORMAT_VERSION}")
             self.heavy = bool(self.attrs["heavy"])
             self.paths = S.dataset_paths(self.heavy)
-            self.committed = self._committed()
+            try:
+                self.committed = self._committed()
+            except _READ_ERRORS:
+                if not salvaging:
+                    raise
+                # commit log lost: offer every row the datasets hold; salvage validates block by block
+                self.committed = {p: int(self.h5[p].shape[0]) for p in self.paths}
+                self.committed["__blocks__"] = -1
         except StorageError:
             self.h5.close()
             raise
@@ -117,6 +126,9 @@ class ResultsFile:
 
     def block_rows(self) -> list[int]:
         """Molecule count after each committed block."""
+        if self.committed["__blocks__"] < 0:  # no usable commit log (salvage): whole chunks
+            n = self.n_rows
+            return list(range(8192, n, 8192)) + [n]
         col = 1 + self.paths.index("molecules/input_index")
         return [int(x) for x in self.h5["commits"][: self.committed["__blocks__"], col]]
 
@@ -195,6 +207,9 @@ class ResultsFile:
         s0 = int(col["state_start"][0]) if stop > start else 0
         s1 = s0 + int(res.n_states.sum())
         res.states = {name: self.states(name, s0, s1) for name, _, _ in S.STATE_COLUMNS}
+        if any(len(a) != s1 - s0 for a in res.states.values()) or any(
+                len(getattr(res, name)) != stop - start for name in S.MOLECULE_TEXT):
+            raise _damaged(self.path, f"rows {start}-{stop} are incomplete")
         if self.heavy:
             res.heavy = self._heavy(col["heavy_start"], col["n_chromophores"])
         return res
@@ -403,5 +418,5 @@ def rewrite(path: str | Path, rows: int = 65536) -> None:
         finally:
             writer.close(complete=False)
     with h5py.File(tmp, "r+", libver=LIBVER) as h5:
-        h5.attrs.update(attrs)
+        h5["run"].attrs.update({k: v for k, v in attrs.items() if k in S.VOLATILE_ATTRS})
     tmp.replace(path)

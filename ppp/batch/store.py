@@ -106,13 +106,19 @@ class ResultsWriter:
         path = Path(path)
         try:
             h5 = _new_file(path)
-            h5.attrs.update({"format": S.FORMAT, "format_version": S.FORMAT_VERSION, "status": "running",
-                             "created": now_utc(), "finished": "", "history": "[]"})
-            h5.attrs.update(attrs)
+            # root attributes are written once, here, and never changed (the root object header then
+            # stays at the start of the file, where a truncated file still has it); what changes from
+            # run to run lives on the group /run
+            static = {k: v for k, v in attrs.items() if k not in S.VOLATILE_ATTRS}
+            h5.attrs.update({"format": S.FORMAT, "format_version": S.FORMAT_VERSION})
+            h5.attrs.update(static)
+            run = h5.create_group("run")
+            run.attrs.update({"status": "running", "created": now_utc(), "finished": "", "history": "[]"})
+            run.attrs.update({k: v for k, v in attrs.items() if k in S.VOLATILE_ATTRS})
             h5.create_dataset("parameter_file", data=np.frombuffer(parameter_text.encode(), np.uint8))
-            # the same attributes as JSON in a small dataset near the start of the file: salvage falls
-            # back on it when the attribute storage itself is lost
+            # the root attributes again as JSON text in a small dataset: salvage reads this copy
             prov = {k: (v.item() if isinstance(v, np.generic) else v) for k, v in h5.attrs.items()}
+            prov["created"] = str(run.attrs["created"])
             h5.create_dataset("provenance", data=np.frombuffer(json.dumps(prov).encode(), np.uint8))
             _create_datasets(h5, bool(attrs["heavy"]))
             h5.flush()
@@ -127,7 +133,7 @@ class ResultsWriter:
         path = Path(path)
         try:
             h5 = h5py.File(path, "r+", libver=LIBVER)
-            h5.attrs["status"] = "running"
+            h5["run"].attrs["status"] = "running"
             for p in S.dataset_paths(bool(h5.attrs["heavy"])):
                 h5[p].resize(committed[p], axis=0)
             n_blocks = committed["__blocks__"]
@@ -283,15 +289,16 @@ class ResultsWriter:
             self.h5.close()
         try:
             with h5py.File(self.path, "r+", libver=LIBVER) as h5:
+                run = h5["run"].attrs
                 if complete:
-                    h5.attrs["status"] = "complete"
-                    h5.attrs["finished"] = now_utc()
+                    run["status"] = "complete"
+                    run["finished"] = now_utc()
                 else:
-                    h5.attrs["status"] = "incomplete"
+                    run["status"] = "incomplete"
                 if run_record is not None:
-                    hist = json.loads(h5.attrs.get("history", "[]"))
+                    hist = json.loads(run.get("history", "[]"))
                     hist.append(run_record)
-                    h5.attrs["history"] = json.dumps(hist)
+                    run["history"] = json.dumps(hist)
         except OSError as exc:
             raise StorageError(f"cannot finalise '{self.path}': {exc}") from None
 
