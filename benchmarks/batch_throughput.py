@@ -43,7 +43,9 @@ from ppp.batch.runner import BatchConfig, run_batch
 t = time.perf_counter()
 s = run_batch(BatchConfig(input=Path({inp!r}), output=Path({out!r}), jobs={jobs}, overwrite=True, progress=False))
 wall = time.perf_counter() - t
-print(json.dumps({{"wall": wall, "startup": s.startup_seconds, "rows": sum(s.counts.values()), "ok": s.counts.get("ok", 0),
+ru_s, ru_c = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(resource.RUSAGE_CHILDREN)
+print(json.dumps({{"wall": wall, "startup": s.startup_seconds,
+                  "cpu": ru_s.ru_utime + ru_s.ru_stime + ru_c.ru_utime + ru_c.ru_stime, "rows": sum(s.counts.values()), "ok": s.counts.get("ok", 0),
                   "parent_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
                   "worker_rss_mb": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024}}))
 """
@@ -63,25 +65,26 @@ def loop_rate(path: Path, count: int) -> tuple[float, int]:
     step = max(1, len(items) // count)
     pick = items[::step][:count]
     ppp.compute("C=CC=C")  # imports and caches outside the timing
-    t = time.perf_counter()
+    t, c = time.perf_counter(), time.process_time()
     for it in pick:
         try:
             ppp.compute(it.payload, name=it.name)
         except ppp.PPPError:
             pass
-    return len(pick) / (time.perf_counter() - t), len(pick)
+    return len(pick) / (time.perf_counter() - t), len(pick), (time.process_time() - c) / len(pick)
 
 
 def report(label: str, path: Path, jobs: int, loop_n: int, tmp: Path) -> dict:
     b = batch_in_subprocess(path, tmp / f"{label}.h5", jobs)
     rate = b["rows"] / b["wall"]
     steady = b["rows"] / max(b["wall"] - b["startup"], 1e-9)
-    lrate, ln = loop_rate(path, loop_n)
+    lrate, ln, lcpu = loop_rate(path, loop_n)
     print(f"{label:<20s} {b['rows']:>6d} mol  batch {rate:7.1f} mol/s overall, {steady:7.1f} after "
           f"{b['startup']:.1f} s start-up ({jobs} workers, HDF5 incl.)  "
           f"plain loop {lrate:6.1f} mol/s (on {ln})  ratio {rate / lrate:4.2f} / {steady / lrate:4.2f}  "
           f"file {b['file_bytes'] / b['rows']:7.0f} B/mol  peak RSS parent {b['parent_rss_mb']:.0f} MB, "
-          f"worker {b['worker_rss_mb']:.0f} MB")
+          f"worker {b['worker_rss_mb']:.0f} MB  CPU per molecule: batch {1000 * b['cpu'] / b['rows']:.1f} ms "
+          f"(all processes, start-up included), loop {1000 * lcpu:.1f} ms")
     return b
 
 

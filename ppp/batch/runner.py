@@ -239,7 +239,8 @@ def run_batch(cfg: BatchConfig, stream=None) -> BatchSummary:
                  time_limit=float(cfg.time_limit or 0.0))
     cfg.output.parent.mkdir(parents=True, exist_ok=True)
     lock_fh, lock_path = _lock(cfg.output)
-    for key, val in THREAD_ENV.items():
+    saved_env = {key: os.environ.get(key) for key in THREAD_ENV}
+    for key, val in THREAD_ENV.items():  # inherited by the worker processes started below
         os.environ.setdefault(key, val)
     try:
         writer, done = _open_output(cfg, ident, attrs, pset)
@@ -253,6 +254,11 @@ def run_batch(cfg: BatchConfig, stream=None) -> BatchSummary:
             return summary
         return _run(cfg, writer, done, expected, summary, pset, stream, t0)
     finally:
+        for key, val in saved_env.items():
+            if val is None:
+                os.environ.pop(key, None)
+            else:
+                os.environ[key] = val
         lock_fh.close()
         lock_path.unlink(missing_ok=True)
 

@@ -15,7 +15,6 @@ so it can only be opened in SWMR-read mode; resuming copies its committed rows i
 from __future__ import annotations
 
 import json
-import os
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -311,7 +310,3 @@ def _read_text(h5, name: str, n: int) -> list[str]:
     blob = h5[f"molecules/{name}/bytes"][: int(end[-1])].tobytes()
     starts = np.concatenate([[0], end[:-1]])
     return [blob[s:e].decode("utf-8") for s, e in zip(starts.tolist(), end.tolist())]
-
-
-def replace_atomically(tmp: Path, path: Path) -> None:
-    os.replace(tmp, path)

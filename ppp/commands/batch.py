@@ -1,7 +1,6 @@
 """``ppp batch``: compute a library into a resumable HDF5 results file."""
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
 from ..errors import InputError
