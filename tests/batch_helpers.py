@@ -23,10 +23,11 @@ BAD_LINES = [
 ]
 
 
-def small_library(path: Path, n: int = 30, seed: int = 11, with_bad: bool = True) -> list[str]:
-    """Write a SMILES file of ``n`` small generated dyes (8-18 pi-centres), the bad lines interleaved.
-    Returns the lines written (SMILES and name)."""
-    lines = [f"{s} dye-{k:03d}" for k, s in enumerate(dye_library(n, seed=seed, min_centres=8, max_centres=18))]
+def small_library(path: Path, n: int = 30, seed: int = 11, with_bad: bool = True, max_centres: int = 18) -> list[str]:
+    """Write a SMILES file of ``n`` small generated dyes (8 to ``max_centres`` pi-centres), the bad lines
+    interleaved. Returns the lines written (SMILES and name)."""
+    lines = [f"{s} dye-{k:03d}" for k, s in enumerate(dye_library(n, seed=seed, min_centres=8,
+                                                                   max_centres=max_centres))]
     if with_bad:
         for j, (smi, name, _) in enumerate(BAD_LINES):
             lines.insert(3 + 5 * j, f"{smi} {name}")

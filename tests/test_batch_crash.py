@@ -27,7 +27,7 @@ ROOT = Path(__file__).resolve().parent.parent
 def clean(tmp_path_factory):
     d = tmp_path_factory.mktemp("crash")
     inp = d / "lib.smi"
-    small_library(inp, n=40, seed=5)
+    small_library(inp, n=60, seed=5, max_centres=30)
     ref = d / "ref.h5"
     assert run(inp, ref, jobs=2, block_size=4).complete
     return inp, ref
@@ -53,7 +53,7 @@ def test_kill_9_at_random_moments_then_resume(clean, tmp_path):
     out = tmp_path / "killed.h5"
     rng = np.random.default_rng(20240917)
     kills_mid_run = 0
-    for attempt in range(3):
+    for attempt in range(4):
         before = _committed(out) if out.exists() else 0
         proc = _start(inp, out)
         # wait until this run has committed something new, then kill it a random moment later
@@ -62,14 +62,16 @@ def test_kill_9_at_random_moments_then_resume(clean, tmp_path):
             if out.exists() and _committed(out) > before:
                 break
             time.sleep(0.02)
-        time.sleep(rng.uniform(0.0, 0.3))
+        time.sleep(rng.uniform(0.0, 0.1))
         if proc.poll() is None:
             proc.send_signal(signal.SIGKILL)
             proc.wait()
             rows = _committed(out)
             with ResultsFile(out) as rf:
-                assert rf.interrupted and not rf.complete
-            if 0 < rows < total:
+                if rf.complete:  # killed while tidying up after the last row: nothing lost
+                    break
+                assert rf.interrupted and rows < total
+            if rows > 0:
                 kills_mid_run += 1
         else:
             proc.communicate()

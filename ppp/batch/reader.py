@@ -395,7 +395,7 @@ def _salvage(path: Path, out: Path, heartbeat) -> tuple[int, int]:
     return recovered, claimed
 
 
-def rewrite(path: str | Path, rows: int = 65536) -> None:
+def rewrite(path: str | Path, rows: int = 8192) -> None:
     """Rewrite a results file compactly: its committed rows into a fresh file, swapped in atomically.
 
     Appending block by block leaves superseded copies of partly filled chunks behind in the file;

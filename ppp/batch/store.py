@@ -142,12 +142,15 @@ class ResultsWriter:
         except (OSError, KeyError) as exc:
             raise StorageError(f"cannot reopen '{path}' for appending: {exc}") from None
         w = cls(h5, path)
-        keys = _read_text(h5, "key", committed["molecules/input_index"])
-        sources = h5["molecules/source"][: committed["molecules/input_index"]]
-        kinds = _read_text(h5, "error_kind", len(keys))
-        for k, src, kind in zip(keys, sources, kinds):
-            if kind == "":
-                w.seen.setdefault(_key_hash(k), int(src))
+        n = committed["molecules/input_index"]
+        for start in range(0, n, 65536):  # in slices: memory stays flat for any file size
+            stop = min(start + 65536, n)
+            keys = _read_text(h5, "key", start, stop)
+            kinds = _read_text(h5, "error_kind", start, stop)
+            sources = h5["molecules/source"][start:stop]
+            for k, src, kind in zip(keys, sources, kinds):
+                if kind == "":
+                    w.seen.setdefault(_key_hash(k), int(src))
         return w
 
     # -- writing -------------------------------------------------------------------------------
@@ -302,11 +305,13 @@ class ResultsWriter:
             raise StorageError(f"cannot finalise '{self.path}': {exc}") from None
 
 
-def _read_text(h5, name: str, n: int) -> list[str]:
-    """First ``n`` values of a text column."""
-    if n == 0:
+def _read_text(h5, name: str, start: int, stop: int) -> list[str]:
+    """Rows start:stop of a text column."""
+    if stop <= start:
         return []
-    end = h5[f"molecules/{name}/end"][:n]
-    blob = h5[f"molecules/{name}/bytes"][: int(end[-1])].tobytes()
-    starts = np.concatenate([[0], end[:-1]])
-    return [blob[s:e].decode("utf-8") for s, e in zip(starts.tolist(), end.tolist())]
+    end = h5[f"molecules/{name}/end"][max(start - 1, 0):stop]
+    first = int(end[0]) if start > 0 else 0
+    end = end[1:] if start > 0 else end
+    blob = h5[f"molecules/{name}/bytes"][first:int(end[-1])].tobytes()
+    starts = np.concatenate([[first], end[:-1]]) - first
+    return [blob[s:e].decode("utf-8") for s, e in zip(starts.tolist(), (end - first).tolist())]
