@@ -70,6 +70,7 @@ def _new_file(path: Path) -> h5py.File:
     fapl = h5py.h5p.create(h5py.h5p.FILE_ACCESS)
     fapl.set_libver_bounds(h5py.h5f.LIBVER_V110, h5py.h5f.LIBVER_V110)
     fapl.set_fclose_degree(h5py.h5f.CLOSE_STRONG)
+    fapl.set_cache(0, 521, 0, 0.75)  # no raw-chunk cache: blocks are written once, whole
     fcpl = h5py.h5p.create(h5py.h5p.FILE_CREATE)
     fcpl.set_attr_phase_change(64, 48)
     fid = h5py.h5f.create(str(path).encode(), h5py.h5f.ACC_TRUNC, fcpl=fcpl, fapl=fapl)
@@ -131,7 +132,7 @@ class ResultsWriter:
         """Reopen a cleanly closed file for appending, cutting every dataset to its committed size."""
         path = Path(path)
         try:
-            h5 = h5py.File(path, "r+", libver=LIBVER)
+            h5 = h5py.File(path, "r+", libver=LIBVER, rdcc_nbytes=0)
             h5["run"].attrs["status"] = "running"
             for p in S.dataset_paths(bool(h5.attrs["heavy"])):
                 h5[p].resize(committed[p], axis=0)
