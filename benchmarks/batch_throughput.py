@@ -51,6 +51,60 @@ print(json.dumps({{"wall": wall, "startup": s.startup_seconds,
 """
 
 
+_WRITER_CHILD = r"""
+import os, resource, sys, time
+import numpy as np
+sys.path.insert(0, {root!r})
+from pathlib import Path
+from ppp.batch.reader import rewrite
+from ppp.batch.store import ResultsWriter
+from ppp.batch.worker import ChunkResult
+n_total, rows, k = {n}, 500, 20  # 20 states per molecule, as with 10 singlets + 10 triplets
+out = Path({out!r})
+attrs = dict(input_sha256="-", input_format="smiles", options="{{}}", parameters_sha256="-", shard="1/1",
+             heavy=False, smiles_column="", id_column="", program_version="-", parameters="-", input_name="-",
+             input_records=n_total, expected_rows=n_total, time_limit=0.0)
+w = ResultsWriter.create(out, attrs, "")
+rng = np.random.default_rng(0)
+t = time.perf_counter()
+for start in range(0, n_total, rows):
+    n = min(rows, n_total - start)
+    m = n * k
+    c = ChunkResult(index=np.arange(start, start + n), source=np.arange(start, start + n) + 1)
+    c.key = [f"id-{{i}}" for i in range(start, start + n)]
+    c.name = list(c.key)
+    c.smiles = ["CN(C)c1ccc(cc1)/N=N/c1ccc(cc1)[N+](=O)[O-]"] * n
+    c.canonical_smiles = list(c.smiles)
+    c.error_kind, c.error_message = [""] * n, [""] * n
+    c.ints, c.floats, c.n_states = np.ones((n, 3), np.int64), rng.random((n, 10)), np.full(n, k)
+    c.states = {{"chromophore": np.zeros(m, np.int16), "multiplicity": np.ones(m, np.int8),
+                "root": np.ones(m, np.int16), "energy_ev": rng.random(m), "wavelength_nm": rng.random(m),
+                "oscillator_strength": rng.random(m), "transition_dipole": rng.random((m, 3)),
+                "polarization_deg": rng.random(m), "dominant_homo_minus": np.zeros(m, np.int16),
+                "dominant_lumo_plus": np.zeros(m, np.int16), "dominant_weight": rng.random(m)}}
+    w.add(c)
+    if w.pending_rows >= 1000:
+        w.commit()
+w.close(complete=True)
+write_s = time.perf_counter() - t
+rss_write = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+rewrite(out)
+print(n_total / write_s, rss_write, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+      os.path.getsize(out) / n_total)
+"""
+
+
+def writer_only(sizes: list[int], tmp: Path) -> None:
+    """Memory and speed of the writer alone (synthetic rows, no chemistry), to large sizes."""
+    print("writer alone (synthetic rows, 20 states each; parent side of a batch):")
+    for n in sizes:
+        code = _WRITER_CHILD.format(root=str(ROOT), n=n, out=str(tmp / f"w{n}.h5"))
+        res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+        rate, rss_w, rss_r, size = (float(x) for x in res.stdout.split())
+        print(f"  {n:>8d} molecules  {rate:8.0f} mol/s written  peak RSS {rss_w:5.0f} MB writing, "
+              f"{rss_r:5.0f} MB after compaction  file {size:6.0f} B/mol")
+
+
 def batch_in_subprocess(inp: Path, out: Path, jobs: int) -> dict:
     code = _CHILD.format(root=str(ROOT), inp=str(inp), out=str(out), jobs=jobs)
     res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
@@ -96,11 +150,15 @@ def main() -> None:
     ap.add_argument("--seed", type=int, default=20240601, help="seed of the generated library")
     ap.add_argument("--min-centres", type=int, default=10)
     ap.add_argument("--max-centres", type=int, default=60)
+    ap.add_argument("--writer-sizes", default="10000,50000,200000",
+                    help="library sizes for the writer-only memory check (comma-separated; empty: skip)")
     args = ap.parse_args()
     print(f"ppp {ppp.__version__}, python {sys.version.split()[0]}, {os.cpu_count()} cores, "
           f"load average {os.getloadavg()[0]:.1f}")
     with tempfile.TemporaryDirectory(prefix="ppp-bench-") as td:
         tmp = Path(td)
+        if args.writer_sizes:
+            writer_only([int(x) for x in args.writer_sizes.split(",")], tmp)
         report("demo library", DEMO_LIBRARY, args.jobs, 10_000, tmp)
         smiles = dye_library(args.n, seed=args.seed, min_centres=args.min_centres, max_centres=args.max_centres)
         print(f"memory and size as the generated library ({args.min_centres}-{args.max_centres} centres) grows:")
