@@ -10,7 +10,8 @@ Quick use::
 __version__ = "0.1.0"
 
 from .driver import ChromophoreResult, MoleculeResult, Options, State, compute, solve_model  # noqa: E402
-from .errors import (ConvergenceError, InputError, ParameterError, ParseError, PPPError,  # noqa: E402
+from .errors import (ConvergenceError, InputError, NoPiSystemError, OpenShellError, ParameterError,  # noqa: E402
+                     ParseError, PPPError, RadicalError, UnsupportedElementError,
                      StorageError, TooLargeError, UnsupportedError)
 from .model.params import available as available_parameters  # noqa: E402
 from .model.params import load as load_parameters  # noqa: E402

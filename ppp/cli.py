@@ -13,7 +13,7 @@ from . import __version__
 from .errors import PPPError
 
 #: Subcommand modules, in the order ``ppp --help`` lists them.
-COMMANDS = ["run", "parameters", "spectrum", "compare", "fit"]
+COMMANDS = ["run", "batch", "demo", "export", "merge", "salvage", "spectrum", "compare", "fit", "parameters"]
 
 
 def build_parser() -> argparse.ArgumentParser:

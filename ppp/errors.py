@@ -46,6 +46,30 @@ class UnsupportedError(InputError):
     kind = "unsupported"
 
 
+class RadicalError(UnsupportedError):
+    """An atom carries an unpaired electron."""
+
+    kind = "radical"
+
+
+class OpenShellError(UnsupportedError):
+    """A chromophore with an odd number of pi electrons."""
+
+    kind = "open_shell"
+
+
+class NoPiSystemError(UnsupportedError):
+    """No conjugated multiple bond: nothing for the pi model to describe."""
+
+    kind = "no_pi_system"
+
+
+class UnsupportedElementError(UnsupportedError):
+    """An element or bonding situation of a pi-centre that the model does not cover."""
+
+    kind = "unsupported_element"
+
+
 class TooLargeError(InputError):
     """More pi-centres than the chosen solver handles."""
 

@@ -29,7 +29,8 @@ from dataclasses import dataclass
 import numpy as np
 from rdkit import Chem
 
-from ..errors import ParseError, UnsupportedError
+from ..errors import (NoPiSystemError, OpenShellError, ParseError, RadicalError, UnsupportedElementError,
+                      UnsupportedError)
 
 #: Elements that can hold a pi multiple bond inside the system.
 _MULTIPLE_BOND_ELEMENTS = {"C", "N", "O", "B", "S"}
@@ -97,7 +98,7 @@ def centre_type(atom: Chem.Atom) -> str:
         return sym
     if sym == "B" and nsig == 3:
         return "B"
-    raise UnsupportedError(f"{_atom_name(atom)} with {nsig} sigma bonds is not covered by the pi model")
+    raise UnsupportedElementError(f"{_atom_name(atom)} with {nsig} sigma bonds is not covered by the pi model")
 
 
 #: Core charge Z of each centre type: pi electrons it gives to the neutral pi-system.
@@ -132,7 +133,7 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     """
     for atom in mol.GetAtoms():
         if atom.GetNumRadicalElectrons():
-            raise UnsupportedError(f"radical: {_atom_name(atom)} has an unpaired electron")
+            raise RadicalError(f"radical: {_atom_name(atom)} has an unpaired electron")
     kek = Chem.Mol(mol)
     try:
         Chem.Kekulize(kek, clearAromaticFlags=True)
@@ -149,7 +150,7 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
             continue  # S=O / P=O of sulfones, sulfonates, phosphonates: non-conjugating
         for x, y in ((a, b), (b, a)):
             if x.GetSymbol() not in _MULTIPLE_BOND_ELEMENTS:
-                raise UnsupportedError(
+                raise UnsupportedElementError(
                     f"{_atom_name(x)}: multiple bond to {_atom_name(y)} is not covered by the pi model")
         unsaturated[a.GetIdx()] = unsaturated[b.GetIdx()] = True
 
@@ -162,7 +163,7 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
             in_pi[i] = True
 
     if not in_pi.any():
-        raise UnsupportedError("no pi-system (no conjugated multiple bonds)")
+        raise NoPiSystemError("no pi-system (no conjugated multiple bonds)")
 
     # connected components of the pi graph
     comp = -np.ones(n_atoms, dtype=int)
@@ -203,7 +204,7 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
         n_el = int(n_pi.sum())
         label = f"chromophore {c + 1} ({len(idx)} centres)"
         if n_el % 2:
-            raise UnsupportedError(
+            raise OpenShellError(
                 f"{label} has an odd number ({n_el}) of pi electrons: open shell, or bonding the model does not cover")
         if n_el == 0 or n_el >= 2 * len(idx):
             raise UnsupportedError(f"{label} has {n_el} pi electrons: no excitation possible")

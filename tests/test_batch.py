@@ -1,0 +1,230 @@
+"""Batch runs: readers, errors as data, identical files from 1 worker, 2 workers and a Dask cluster,
+sharding + merge, export, and refusal to overwrite.
+
+The reference for "identical" is the project's own clean run with 2 local workers: these are
+consistency laws of the batch layer (the same inputs give the same numbers however they are
+scheduled), not accuracy checks of the model.
+"""
+from __future__ import annotations
+
+import csv
+import gzip
+
+import numpy as np
+import pytest
+from batch_helpers import BAD_LINES, assert_same_results, error_rows, n_rows, run, small_library
+
+import ppp
+from ppp.batch import inputs
+from ppp.batch.export import export
+from ppp.batch.merge import merge
+from ppp.batch.reader import ResultsFile
+from ppp.errors import InputError, StorageError
+
+
+@pytest.fixture(scope="module")
+def library(tmp_path_factory):
+    d = tmp_path_factory.mktemp("lib")
+    inp = d / "lib.smi"
+    small_library(inp, n=30)
+    ref = d / "ref.h5"
+    summary = run(inp, ref, jobs=2)
+    assert summary.complete
+    return inp, ref
+
+
+# -- readers -------------------------------------------------------------------------------------
+def test_smiles_reader_numbers_lines_and_names(tmp_path):
+    p = tmp_path / "a.smi"
+    p.write_text("# header\n\nC=CC=C butadiene one\nc1ccccc1\n")
+    items = list(inputs.read_items(p))
+    assert [(i.index, i.source, i.name, i.payload) for i in items] == [
+        (0, 3, "butadiene one", "C=CC=C"), (1, 4, "", "c1ccccc1")]
+
+
+def test_csv_reader_columns_and_missing_value(tmp_path):
+    p = tmp_path / "a.csv"
+    p.write_text('code,structure,note\nX1,C=CC=C,"a, b"\nX2,,empty\nX3,c1ccccc1,\n')
+    items = list(inputs.read_items(p, smiles_column="structure", id_column="code"))
+    assert [(i.source, i.name, i.payload) for i in items] == [(2, "X1", "C=CC=C"), (3, "X2", ""), (4, "X3", "c1ccccc1")]
+    assert "no value in column 'structure'" in items[1].problem
+    with pytest.raises(InputError, match="no column 'smiles_here'"):
+        list(inputs.read_items(p, smiles_column="smiles_here"))
+    with pytest.raises(InputError, match="no SMILES column"):
+        list(inputs.read_items(p))
+
+
+def test_sdf_gz_reader_records_and_truncation(tmp_path):
+    from rdkit import Chem
+    blocks = []
+    for name, smi in (("azo", "c1ccccc1/N=N/c1ccccc1"), ("diene", "C=CC=C")):
+        m = Chem.MolFromSmiles(smi)
+        m.SetProp("_Name", name)
+        blocks.append(Chem.MolToMolBlock(m) + "$$$$\n")
+    truncated = blocks[1].split("M  END")[0]  # a record cut before its end line
+    p = tmp_path / "lib.sdf.gz"
+    with gzip.open(p, "wt") as fh:
+        fh.write("".join(blocks) + truncated)
+    items = list(inputs.read_items(p))
+    assert [(i.source, i.name, i.kind) for i in items] == [(1, "azo", "molblock"), (2, "diene", "molblock"),
+                                                          (3, "diene", "molblock")]
+    assert items[2].problem.startswith("truncated MOL block")
+    out = tmp_path / "sdf.h5"
+    run(p, out, jobs=1)
+    rows = error_rows(out)
+    with ResultsFile(out) as rf:
+        assert rf.text("error_kind") == ["", "", "parse"]
+        assert rf.text("error_message")[2].startswith("record 3:")
+        # the ID of record 3 repeats record 2's, so its key is refused even though it failed anyway
+        assert rf.text("key") == ["azo", "diene", "diene"]
+    assert rows["azo"][0] == ""
+
+
+def test_unknown_format_is_refused(tmp_path):
+    p = tmp_path / "lib.xyz"
+    p.write_text("C=C\n")
+    with pytest.raises(InputError, match="--format"):
+        list(inputs.read_items(p))
+
+
+# -- errors are data ------------------------------------------------------------------------------
+def test_every_bad_input_kind_lands_in_the_file(library):
+    inp, ref = library
+    rows = error_rows(ref)
+    for smi, name, kind in BAD_LINES:
+        got_kind, msg = rows[name]
+        assert got_kind, f"{name} ({smi}) should have failed"
+        if kind is not None:
+            assert got_kind == kind, (name, got_kind, msg)
+        assert msg.startswith("line "), msg  # the line number travels with the error
+        line_no = int(msg.split()[1].rstrip(":"))
+        assert inp.read_text().splitlines()[line_no - 1].startswith(smi)
+    with ResultsFile(ref) as rf:
+        status = rf.column("status")
+        assert rf.n_rows == 34 and int((status == 0).sum()) >= 25
+        # failed rows have no states; ok rows point at theirs
+        counts = rf.column("state_count")
+        assert np.all(counts[status == 1] == 0) and np.all(counts[status == 0] > 0)
+
+
+def test_scf_failure_timeout_and_duplicate_are_recorded(tmp_path):
+    big = "CN(C)" + "c1ccc(cc1)" * 12 + "C#N"  # 75 centres: ~10x the 0.05 s limit (hexatriene: ~1/20)
+    inp = tmp_path / "x.smi"
+    inp.write_text(f"C=CC=CC=C\n{big} big\nC=CC=CC=C\n")
+    out = tmp_path / "x.h5"
+    run(inp, out, jobs=1, time_limit=0.05)
+    with ResultsFile(out) as rf:
+        kinds, msgs = rf.text("error_kind"), rf.text("error_message")
+    assert kinds == ["", "timeout", "duplicate"]
+    assert msgs[1] == "line 2: stopped after the time limit of 0.05 s"
+    assert "already used by line 1" in msgs[2]
+    out2 = tmp_path / "y.h5"
+    run(inp, out2, jobs=1, options=ppp.Options(max_iter=1), time_limit=None)
+    with ResultsFile(out2) as rf:
+        assert rf.text("error_kind")[0] == "convergence"
+        assert "SCF did not converge" in rf.text("error_message")[0]
+
+
+# -- same file whatever the scheduling --------------------------------------------------------------
+def test_one_worker_gives_the_same_file(library, tmp_path):
+    inp, ref = library
+    out = tmp_path / "one.h5"
+    run(inp, out, jobs=1)
+    assert_same_results(ref, out)
+
+
+def test_dask_cluster_gives_the_same_file(library, tmp_path, monkeypatch):
+    distributed = pytest.importorskip("distributed")  # the 'test' extra installs it; CI runs this
+    from ppp.batch.runner import THREAD_ENV
+    inp, ref = library
+    for key, val in THREAD_ENV.items():  # as docs/batch.md asks of cluster workers
+        monkeypatch.setenv(key, val)
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                                  dashboard_address=None) as cluster:
+        assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
+        out = tmp_path / "dask.h5"
+        summary = run(inp, out, scheduler=cluster.scheduler_address)
+        assert summary.complete and "Dask" in summary.workers
+    assert_same_results(ref, out)
+
+
+def test_shards_merged_equal_the_whole_run(library, tmp_path):
+    inp, ref = library
+    parts = []
+    for k in (1, 2, 3):
+        p = tmp_path / f"shard{k}.h5"
+        # shard 1 on a cluster ppp starts itself (loopback only), the others on local processes
+        run(inp, p, jobs=2 if k == 1 else 1, shard=(k, 3), scheduler="local" if k == 1 else None)
+        parts.append(p)
+    with ResultsFile(parts[0]) as rf:
+        assert set(rf.column("input_index") % 3) == {0}
+    merged = tmp_path / "merged.h5"
+    rep = merge([parts[1], parts[0], parts[2], parts[1]], merged)  # a shard given twice
+    assert rep["complete"] and rep["rows"] == n_rows(ref) and rep["duplicates_dropped"] == n_rows(parts[1])
+    assert_same_results(ref, merged, ignore_attrs=("shard",))
+    with pytest.raises(StorageError, match="exists"):
+        merge(parts, merged)
+    # an incomplete set of shards is marked so that it can never be taken for a whole run
+    partial = tmp_path / "partial.h5"
+    rep = merge(parts[:2], partial)
+    assert not rep["complete"]
+    with ResultsFile(partial) as rf:
+        assert rf.attrs["shard"] == "merged" and rf.attrs["status"] == "incomplete"
+
+
+def test_different_input_or_options_refuse_to_resume(library, tmp_path):
+    inp, ref = library
+    with pytest.raises(StorageError, match="differs in: options"):
+        run(inp, ref, jobs=1, options=ppp.Options(n_singlets=3))
+    other = tmp_path / "other.smi"
+    other.write_text("C=CC=C\n")
+    with pytest.raises(StorageError, match="input_sha256"):
+        run(other, ref, jobs=1)
+    summary = run(inp, ref, jobs=1)  # complete file, same run: nothing to do
+    assert summary.complete and summary.written == 0
+
+
+# -- export ----------------------------------------------------------------------------------------
+def test_export_csv_filters_by_status(library, tmp_path):
+    inp, ref = library
+    out = tmp_path / "all.csv"
+    n = export(ref, out)
+    with open(out, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert n == len(rows) == n_rows(ref)
+    with ResultsFile(ref) as rf:
+        s1 = rf.column("s1_nm")
+        ok = rf.column("status") == 0
+    got = np.array([float(r["s1_nm"]) if r["s1_nm"] else np.nan for r in rows])
+    assert np.array_equal(got, s1, equal_nan=True)  # full precision survives the CSV
+    bad = tmp_path / "failed.csv"
+    assert export(ref, bad, status="failed") == int((~ok).sum())
+    with open(bad, newline="") as fh:
+        failed = list(csv.DictReader(fh))
+    assert {r["name"] for r in failed} >= {name for _, name, _ in BAD_LINES}
+    assert all(r["status"] == "failed" and r["error_message"] for r in failed)
+    with pytest.raises(StorageError, match="exists"):
+        export(ref, out)
+
+
+def test_export_parquet_when_pyarrow_is_present(library, tmp_path):
+    inp, ref = library
+    try:
+        import pyarrow.parquet as pq
+    except ImportError:
+        with pytest.raises(InputError, match="pyarrow"):
+            export(ref, tmp_path / "x.parquet")
+        return
+    n = export(ref, tmp_path / "x.parquet", status="ok")
+    table = pq.read_table(tmp_path / "x.parquet")
+    assert table.num_rows == n and "bright_nm" in table.column_names
+
+
+def test_cli_batch_refuses_a_foreign_file_without_overwrite(tmp_path, cli):
+    inp = tmp_path / "a.smi"
+    inp.write_text("C=CC=C\n")
+    out = tmp_path / "r.h5"
+    out.write_text("not a results file\n")
+    code, _, err = cli("batch", inp, "-o", out, "--jobs", "1")
+    assert code == 1 and err.startswith("error:") and "not an HDF5 file" in err and "--overwrite" in err
+    assert len(err.strip().splitlines()) == 1
