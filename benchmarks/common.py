@@ -34,20 +34,21 @@ def machine() -> str:
             f"(other jobs share the machine: compare ratios, not seconds)")
 
 
+def _per_call(fn, min_time: float) -> float:
+    """Wall time per call of ``fn``, looping it until ``min_time`` has passed, s."""
+    n = 0
+    t0 = time.perf_counter()
+    while True:
+        fn()
+        n += 1
+        el = time.perf_counter() - t0
+        if el >= min_time:
+            return el / n
+
+
 def best_of(fn, repeat: int = 5, min_time: float = 0.05):
     """Smallest wall time of ``repeat`` runs of ``fn`` (each run looped until ``min_time``), s."""
-    best = np.inf
-    for _ in range(repeat):
-        n = 0
-        t0 = time.perf_counter()
-        while True:
-            fn()
-            n += 1
-            el = time.perf_counter() - t0
-            if el >= min_time:
-                break
-        best = min(best, el / n)
-    return best
+    return min(_per_call(fn, min_time) for _ in range(repeat))
 
 
 def paired_best(fns, repeat: int = 9, min_time: float = 0.02):
@@ -56,15 +57,7 @@ def paired_best(fns, repeat: int = 9, min_time: float = 0.02):
     best = [np.inf] * len(fns)
     for _ in range(repeat):
         for k, fn in enumerate(fns):
-            n = 0
-            t0 = time.perf_counter()
-            while True:
-                fn()
-                n += 1
-                el = time.perf_counter() - t0
-                if el >= min_time:
-                    break
-            best[k] = min(best[k], el / n)
+            best[k] = min(best[k], _per_call(fn, min_time))
     return best
 
 

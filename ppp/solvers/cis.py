@@ -38,7 +38,7 @@ class CISResult:
     amplitudes: np.ndarray
 
 
-def _pair_products(ca: np.ndarray, cb: np.ndarray) -> np.ndarray:
+def pair_products(ca: np.ndarray, cb: np.ndarray) -> np.ndarray:
     """(N, na*nb) array of C_mu,p C_mu,q over all pairs (p in ca, q in cb)."""
     n = ca.shape[0]
     return (ca[:, :, None] * cb[:, None, :]).reshape(n, -1)
@@ -52,10 +52,10 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
     co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
     o, v = co.shape[1], cv.shape[1]
     # exchange-type (ij|ab), arranged as [ia, jb]
-    j_int = (_pair_products(co, co).T @ gamma @ _pair_products(cv, cv)).reshape(o, o, v, v)
+    j_int = (pair_products(co, co).T @ gamma @ pair_products(cv, cv)).reshape(o, o, v, v)
     a = -j_int.transpose(0, 2, 1, 3).reshape(o * v, o * v)
     if multiplicity == 1:
-        b = _pair_products(co, cv)  # (N, o*v) transition densities
+        b = pair_products(co, cv)  # (N, o*v) transition densities
         a += 2.0 * (b.T @ gamma @ b)
     diag = (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
     a[np.diag_indices_from(a)] += diag

@@ -15,28 +15,25 @@ from __future__ import annotations
 import numpy as np
 import scipy.linalg
 
+from . import cis as cis_solver
 from . import scf as scf_solver
 
 #: Largest orbital-rotation space (n_occ * n_vir) for which the dense Hessian is built.
 MAX_DENSE_ROTATIONS = 4000
 
 
-def _pair_products(ca: np.ndarray, cb: np.ndarray) -> np.ndarray:
-    n = ca.shape[0]
-    return (ca[:, :, None] * cb[:, None, :]).reshape(n, -1)
-
-
 def real_hessian(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int) -> np.ndarray:
-    """Closed-shell real-rotation Hessian A + B, (n_occ*n_vir, n_occ*n_vir), eV; index ia = i*n_vir + a."""
+    """Closed-shell real-rotation Hessian A + B, (n_occ*n_vir, n_occ*n_vir), eV; index ia = i*n_vir + a.
+
+    A is the singlet CIS matrix; B_ia,jb = 2 (ia|jb) - (ib|ja).
+    """
+    a = cis_solver.cis_matrix(mo_energy, mo_coeff, gamma, n_occ, 1)
     co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
     o, v = co.shape[1], cv.shape[1]
-    ov = _pair_products(co, cv)
+    ov = cis_solver.pair_products(co, cv)
     k = (ov.T @ gamma @ ov).reshape(o, v, o, v)              # (ia|jb) as [i, a, j, b]
-    j = (_pair_products(co, co).T @ gamma @ _pair_products(cv, cv)).reshape(o, o, v, v)  # (ij|ab)
-    h = 4.0 * k - k.transpose(0, 3, 2, 1) - j.transpose(0, 2, 1, 3)
-    h = h.reshape(o * v, o * v)
-    h[np.diag_indices_from(h)] += (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
-    return h
+    b = 2.0 * k - k.transpose(0, 3, 2, 1)                    # 2 (ia|jb) - (ib|ja)
+    return a + b.reshape(o * v, o * v)
 
 
 def lowest_mode(mo_energy, mo_coeff, gamma, n_occ) -> tuple[float, np.ndarray]:

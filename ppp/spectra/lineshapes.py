@@ -154,8 +154,22 @@ class Progression:
                 f"({self.mode_ev * EV_CM1:.0f} cm-1)")
 
 
+class _EnergyAxis:
+    """Wavelength and wavenumber views of an ``energy_ev`` array (eV)."""
+
+    energy_ev: np.ndarray
+
+    @property
+    def wavelength_nm(self) -> np.ndarray:
+        return ev_to_nm(self.energy_ev)
+
+    @property
+    def wavenumber_cm1(self) -> np.ndarray:
+        return self.energy_ev * EV_CM1
+
+
 @dataclass(frozen=True)
-class Sticks:
+class Sticks(_EnergyAxis):
     """A stick spectrum: vertical energies (eV), oscillator strengths and labels, shape (k,)."""
 
     energy_ev: np.ndarray
@@ -180,20 +194,12 @@ class Sticks:
         object.__setattr__(self, "f", f)
         object.__setattr__(self, "labels", labels)
 
-    @property
-    def wavelength_nm(self) -> np.ndarray:
-        return ev_to_nm(self.energy_ev)
-
-    @property
-    def wavenumber_cm1(self) -> np.ndarray:
-        return self.energy_ev * EV_CM1
-
     def shifted(self, shift_ev: float) -> "Sticks":
         return Sticks(self.energy_ev + shift_ev, self.f, self.labels)
 
 
 @dataclass(frozen=True)
-class Curve:
+class Curve(_EnergyAxis):
     """A broadened spectrum on an energy grid.
 
     energy_ev : (n,) ascending photon energies, eV
@@ -202,14 +208,6 @@ class Curve:
 
     energy_ev: np.ndarray
     epsilon: np.ndarray
-
-    @property
-    def wavelength_nm(self) -> np.ndarray:
-        return ev_to_nm(self.energy_ev)
-
-    @property
-    def wavenumber_cm1(self) -> np.ndarray:
-        return self.energy_ev * EV_CM1
 
     def peaks(self, min_fraction: float = 0.02) -> list[tuple[float, float]]:
         """Local maxima (energy eV, eps) higher than ``min_fraction`` of the curve's maximum,
