@@ -331,7 +331,7 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
     # state itself is wrong (biradical character), so the molecule is refused. Triplet instability
     # (common for long polyenes and large acenes with PPP parameters): the singlets stand, but no
     # triplet energies are reported.
-    if len(sing.energies) and sing.energies[0] <= 0.0:
+    if _unstable(sing):
         raise UnsupportedError(
             f"closed-shell ground state of chromophore {index + 1} is unstable and no stable closed-shell "
             f"solution was found (lowest singlet excitation {sing.energies[0]:.3f} eV <= 0): open-shell or "
