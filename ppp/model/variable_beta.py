@@ -122,7 +122,7 @@ class VariableBetaResult:
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.ndarray,
             settings: BondOrderBeta, scf_kernel, dens0: np.ndarray | None = None,
-            **scf_kwargs) -> VariableBetaResult:
+            scf_iterate=None, **scf_kwargs) -> VariableBetaResult:
     """Iterate SCF -> bond orders -> lengths -> beta until beta is self-consistent.
 
     Parameters
@@ -132,6 +132,11 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
     gamma : (N, N) eV;  n_occ : doubly occupied orbitals;  types : N type names;  bonds : (M, 2)
     scf_kernel : callable ``(core, gamma, n_occ, dens0=..., **scf_kwargs) -> SCFResult``
     dens0 : optional starting density; its bond orders also give the starting betas
+    scf_iterate : optional single-attempt SCF loop ``(core, gamma, n_occ, dens0, max_iter=...,
+        conv_tol=..., conv_tol_grad=..., core_update=...) -> (converged, iterations, dens)``
+        (``ppp.solvers.scf.iterate``). When given, the betas are first updated inside one SCF run at
+        every iteration (one DIIS history instead of one SCF per beta cycle); the cycle below then
+        only confirms the fixed point, or starts from scratch when that joint run did not converge.
 
     Raises ConvergenceError when an SCF fails or the cycle does not settle within ``max_cycles``.
     """
@@ -146,6 +151,27 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
         core[i, j] = core[j, i] = beta_ref * beta_factor(bond_length(dens0[i, j], settings), settings)
     # inner cycles converge the SCF loosely (the betas move anyway); the last SCF uses full tolerance
     loose = dict(scf_kwargs, conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD)
+    if scf_iterate is not None and mask.any():
+        core0 = core.copy()
+
+        def core_of(d):
+            c = core0.copy()
+            c[i, j] = c[j, i] = beta_ref * beta_factor(bond_length(d[i, j], settings), settings)
+            return c
+
+        start = dens
+        if start is None:
+            alt = scf_kwargs.get("alt_dens0")
+            if alt is not None and scf_kwargs.get("alt_first"):
+                start = np.asarray(alt, dtype=float)
+            else:
+                c = np.linalg.eigh(core)[1][:, :n_occ]
+                start = 2.0 * c @ c.T
+        ok, _, joint = scf_iterate(core, gamma, n_occ, start, max_iter=scf_kwargs.get("max_iter", 100),
+                                   conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD, core_update=core_of)
+        if ok:  # the cycle below now only has to confirm the fixed point
+            dens = joint
+            core = core_of(joint)
     for cycle in range(1, settings.max_cycles + 1):
         scf = scf_kernel(core, gamma, n_occ, dens0=dens, **loose)
         if not scf.converged:

@@ -175,10 +175,13 @@ class _DIIS:
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
             use_diis: bool = True, diis_space: int = 8, level_shift: float = 0.0, damping: float = 0.0,
-            conv_tol: float = CONV_TOL_ENERGY, conv_tol_grad: float = CONV_TOL_GRAD):
+            conv_tol: float = CONV_TOL_ENERGY, conv_tol_grad: float = CONV_TOL_GRAD, core_update=None):
     """One SCF attempt from a starting density. Returns (converged, iterations, dens).
 
     Work per iteration: one O(N^2) Fock build, one matrix product for the error, one eigensolve.
+    core_update : optional callable dens -> core, evaluated at every iteration, for a core Hamiltonian
+        that depends on the density (bond-order-dependent beta); at convergence core and density are
+        then consistent with each other as well.
     """
     dens = dens0
     e_old = np.inf
@@ -186,6 +189,8 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     n = core.shape[0]
     build = fock_builder(n)
     for it in range(1, max_iter + 1):
+        if core_update is not None:
+            core = core_update(dens)
         fock, e = build(core, gamma, dens)
         err = commutator(fock, dens)
         max_err = float(err.max())  # FP - PF is antisymmetric: its largest entry is its largest |entry|
