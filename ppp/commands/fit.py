@@ -6,7 +6,6 @@ from pathlib import Path
 import numpy as np
 
 from ..calibration import evaluate as ev
-from ..calibration import fit as fitting
 from ..calibration import reference
 from ..driver import Options
 from ..errors import InputError, StorageError
@@ -46,6 +45,10 @@ def _mae(energies: np.ndarray, prepared) -> dict[str, float]:
 
 
 def main(args) -> int:
+    # imported here, not at the top: it pulls in scipy.optimize (~0.2 s), which every other command
+    # would pay at start-up because the parser imports all command modules
+    from ..calibration import fit as fitting
+
     out = Path(args.output)
     if out.exists() and not args.overwrite:
         raise StorageError(f"'{out}' exists; add --overwrite to replace it")
