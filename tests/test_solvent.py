@@ -1,0 +1,185 @@
+"""Solvent reaction field (ppp.model.solvent): reduction to the gas phase, hand-worked two-centre cases,
+the laws of the generalized-Born kernel and Born radii, solvatochromic expectations, and bad input."""
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import replace
+
+import h5py
+import numpy as np
+import pytest
+from scipy.optimize import minimize_scalar
+
+import ppp
+from ppp.driver import Options, solve_model
+from ppp.errors import InputError
+from ppp.model import solvent as sm
+from ppp.units import COULOMB_EV_ANGSTROM
+
+from conftest import model_of
+
+NITROANILINE = "Nc1ccc(cc1)[N+](=O)[O-]"
+
+
+def test_solvent_table_and_lookup():
+    # handbook values (CRC Handbook, from memory): water eps 78.4, n 1.333; hexane eps 1.88, n 1.375
+    w = sm.load("Water")
+    assert (w.epsilon, w.refractive_index) == (78.4, 1.333)
+    assert w.f_static == pytest.approx(1 - 1 / 78.4) and w.f_optical == pytest.approx(1 - 1 / 1.333 ** 2)
+    assert sm.load("MeOH").name == "methanol" and sm.load("DCM").name == "dichloromethane"  # aliases
+    assert sm.load("gas").is_vacuum
+    # reference-set spellings with qualifiers map to the plain solvent
+    assert sm.reference_solvent("water (acidic)") == "water"
+    assert sm.reference_solvent("water pH 9-13") == "water"
+
+
+def test_unknown_solvent_is_a_one_line_error(cli):
+    with pytest.raises(InputError, match="unknown solvent 'ethnol'; valid: .*ethanol"):
+        Options(solvent="ethnol")
+    code, out, err = cli("run", "c1ccccc1", "--solvent", "ethnol")
+    assert code != 0
+    assert "unknown solvent 'ethnol'" in err and len(err.strip().splitlines()) == 1 and "Traceback" not in err
+
+
+def test_generalized_born_kernel_two_centres_by_hand():
+    # Still, Tempczyk, Hawley & Hendrickson (1990): f_GB = sqrt(r^2 + a1 a2 exp(-r^2 / 4 a1 a2)).
+    # r = 1.4 A, a1 = a2 = 2.0 A by hand: exp(-1.96/16) = 0.88471, 1.96 + 4 * 0.88471 = 5.49884,
+    # sqrt = 2.34496, 14.39964 / 2.34496 = 6.1407 eV; self term C / a = 7.1998 eV (Born 1920)
+    k = sm.gb_kernel(np.array([[0.0, 0, 0], [1.4, 0, 0]]), np.array([2.0, 2.0]))
+    assert k[0, 1] == pytest.approx(6.1407, abs=2e-4)
+    assert k[0, 0] == pytest.approx(COULOMB_EV_ANGSTROM / 2.0, rel=1e-12)
+    # far apart it tends to Coulomb's law C / r (law of the formula)
+    far = sm.gb_kernel(np.array([[0.0, 0, 0], [30.0, 0, 0]]), np.array([2.0, 2.0]))
+    assert far[0, 1] == pytest.approx(COULOMB_EV_ANGSTROM / 30.0, rel=5e-3)
+
+
+def test_born_radii_laws():
+    # an isolated sphere: the r^-6 integral vanishes and a = rho exactly (Grycuk 2003)
+    assert sm.born_radii(np.zeros((1, 3)), np.array([1.7]))[0] == pytest.approx(1.7, abs=1e-12)
+    # a neighbour's sphere displaces solvent: the radius grows, the more the closer it is
+    near = sm.born_radii(np.array([[0.0, 0, 0], [1.4, 0, 0]]), np.array([1.7, 1.7]))
+    far = sm.born_radii(np.array([[0.0, 0, 0], [3.0, 0, 0]]), np.array([1.7, 1.7]))
+    assert near[0] > far[0] > 1.7
+    assert near[0] == pytest.approx(near[1], abs=1e-3)
+    # benzene: the six equivalent centres get one radius (averaged over graph-equivalent centres)
+    m = model_of("c1ccccc1", solvent="water")
+    assert np.ptp(m.reaction.radii) < 1e-12 and 1.8 < m.reaction.radii[0] < 2.5
+
+
+def _two_electron_energy(h, gam, c):
+    """Closed-shell energy of two electrons in orbital c: 2 c.h.c + sum_ij c_i^2 c_j^2 gamma_ij."""
+    return 2.0 * c @ h @ c + (c * c) @ gam @ (c * c)
+
+
+def test_reaction_field_scf_two_centre_by_hand():
+    # formaldehyde pi system: C and O.oxo, two electrons. The SCF in a solvent must minimise
+    # G(theta) = E(theta) + E_core - 1/2 f(eps) q.Gamma.q, q_i = Z_i - 2 c_i^2, c = (cos, sin) theta,
+    # found here by a one-dimensional minimisation that does not use the project's Fock matrix.
+    opts = Options(bond_order_beta=False, n_singlets=1, n_triplets=1, solvent="water")
+    m0 = model_of("C=O", bond_order_beta=False, solvent="water")
+    rf = m0.reaction
+    z = m0.core_charges.astype(float)
+    f = rf.solvent.f_static
+
+    def g(theta):
+        c = np.array([math.cos(theta), math.sin(theta)])
+        q = z - 2 * c * c
+        return _two_electron_energy(m0.core, m0.gamma, c) + m0.e_core - 0.5 * f * q @ rf.kernel @ q
+
+    best = minimize_scalar(g, bounds=(0.0, math.pi / 2), method="bounded", options={"xatol": 1e-10})
+    res = solve_model(m0, opts)
+    assert res.e_total == pytest.approx(best.fun, abs=1e-8)
+    c = np.array([math.cos(best.x), math.sin(best.x)])
+    assert res.scf.dens[0, 0] == pytest.approx(2 * c[0] ** 2, abs=1e-6)
+    # the gas-phase solution is less polarised: the solvent pulls more charge onto oxygen
+    gas = solve_model(model_of("C=O", bond_order_beta=False), replace(opts, solvent=None))
+    assert res.scf.dens[1, 1] > gas.scf.dens[1, 1] + 0.01
+
+    # vertical singlet: H_eff = H + V (V = f(eps) Gamma q0 frozen), one configuration H -> L, plus the
+    # state-specific electronic term -1/2 f(n^2) dq.Gamma.dq with dq = c_H^2 - c_L^2 per centre
+    ch = c
+    cl = np.array([-c[1], c[0]])
+    q0 = z - 2 * ch * ch
+    hp = m0.core + np.diag(f * rf.kernel @ q0)
+    jhh = (ch * ch) @ m0.gamma @ (ch * ch)
+    jhl = (ch * ch) @ m0.gamma @ (cl * cl)
+    khl = (ch * cl) @ m0.gamma @ (ch * cl)
+    de = cl @ hp @ cl - ch @ hp @ ch + jhl + khl - jhh
+    dq = ch * ch - cl * cl
+    de += -0.5 * rf.solvent.f_optical * dq @ rf.kernel @ dq
+    assert res.singlets[0].energy_ev == pytest.approx(de, abs=1e-6)
+    # triplet: the same without the exchange term 2 K (E_T = E_S - 2 K for one configuration)
+    assert res.triplets[0].energy_ev == pytest.approx(de - 2 * khl, abs=1e-6)
+
+
+def test_excitation_shift_of_one_configuration_by_hand():
+    m = model_of(NITROANILINE, solvent="ethanol")
+    res = solve_model(m, Options(n_singlets=2, n_triplets=0, solvent="ethanol"))
+    n_occ, n_vir = m.n_occ, m.n_centres - m.n_occ
+    amps = np.zeros((1, n_occ, n_vir))
+    amps[0, -1, 0] = 1.0  # pure HOMO -> LUMO
+    c = res.scf.mo_coeff
+    dq = c[:, n_occ - 1] ** 2 - c[:, n_occ] ** 2
+    want = -0.5 * m.reaction.solvent.f_optical * dq @ m.reaction.kernel @ dq
+    assert m.reaction.excitation_shift(c, n_occ, amps)[0] == pytest.approx(want, rel=1e-12)
+    assert want < 0  # electronic polarisation always lowers a state that moves charge
+
+
+def test_gas_phase_reduces_exactly():
+    plain = ppp.compute(NITROANILINE, n_triplets=3)
+    named = ppp.compute(NITROANILINE, n_triplets=3, solvent="gas")
+    assert [s.energy_ev for s in named.states] == [s.energy_ev for s in plain.states]
+    assert named.chromophores[0].model.reaction is None
+    # eps = n^2 = 1 forced through the reaction-field iteration: no term survives
+    m = model_of(NITROANILINE)
+    vac = sm.reaction_field(sm.Solvent("vacuum", 1.0, 1.0), m.coords, m.types, m.core_charges, m.bonds)
+    res = solve_model(replace(m, reaction=vac), Options(n_triplets=3))
+    ref = plain.chromophores[0]
+    assert res.e_total == pytest.approx(ref.e_total, abs=1e-8)
+    np.testing.assert_allclose([s.energy_ev for s in res.singlets], [s.energy_ev for s in ref.singlets],
+                               atol=1e-7)
+    np.testing.assert_allclose([s.energy_ev for s in res.triplets], [s.energy_ev for s in ref.triplets],
+                               atol=1e-7)
+
+
+def test_solvatochromic_expectations():
+    # Lippert-Mataga-type expectations (common practice): a push-pull dye whose excitation moves charge
+    # from donor to acceptor is red-shifted by a polar solvent (4-nitroaniline: about 4.2-4.3 eV in the
+    # gas phase, 3.3 eV in water; from memory); a non-polar alternant hydrocarbon has no pi charges
+    # and no charge-transfer excitation, so the reaction field leaves it unchanged; a symmetric cyanine
+    # moves little charge on excitation and shifts much less than the push-pull dye.
+    def band(smi, solvent):
+        return ppp.compute(smi, n_triplets=0, solvent=solvent).first_bright.energy_ev
+
+    push = band(NITROANILINE, "ethanol") - band(NITROANILINE, None)
+    assert push < -0.2
+    assert abs(band("c1ccc2ccccc2c1", "ethanol") - band("c1ccc2ccccc2c1", None)) < 0.01
+    cyanine = "CN(C)C=CC=CC=[N+](C)C"
+    assert abs(band(cyanine, "methanol") - band(cyanine, None)) < 0.3 * abs(push)
+
+
+def test_solvent_with_bond_order_beta_is_self_consistent():
+    m0 = model_of(NITROANILINE, solvent="water")
+    assert m0.bond_order_beta is not None  # classic default
+    res = solve_model(m0, Options(n_singlets=1, n_triplets=0, solvent="water"))
+    v = m0.reaction.potential(res.scf.dens)
+    np.testing.assert_allclose(np.diag(res.model.core) - np.diag(m0.core), v, atol=1e-6)
+    # and the betas follow the final bond orders as in the gas phase
+    from ppp.model import variable_beta as vbeta
+    i, j = m0.bonds[:, 0], m0.bonds[:, 1]
+    mask = vbeta.variable_bonds(m0.types, m0.bonds, m0.bond_order_beta)
+    want = m0.core[i, j][mask] * vbeta.beta_factor(vbeta.bond_length(res.scf.dens[i, j][mask],
+                                                                      m0.bond_order_beta), m0.bond_order_beta)
+    np.testing.assert_allclose(res.model.core[i, j][mask], want, atol=1e-6)
+
+
+def test_solvent_is_recorded_in_json_and_hdf5(tmp_path):
+    res = ppp.compute(NITROANILINE, n_singlets=2, n_triplets=0, solvent="ethanol")
+    assert res.to_dict()["options"]["solvent"] == "ethanol"
+    from ppp.io import h5_io
+    path = h5_io.save([res], tmp_path / "r.h5")
+    with h5py.File(path, "r") as h5:
+        grp = next(iter(h5["molecules"].values()))
+        assert json.loads(grp.attrs["options"])["solvent"] == "ethanol"
+    assert "solvent ethanol" in res.table()
