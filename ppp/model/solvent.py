@@ -55,6 +55,7 @@ from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
+from scipy.spatial.distance import cdist
 
 from ..errors import InputError, ParameterError
 from ..units import COULOMB_EV_ANGSTROM
@@ -174,12 +175,9 @@ def _born_radii_cached(coords_b: bytes, rho_b: bytes) -> np.ndarray:
         if len(nb) == 0:
             out[i] = rho[i]
             continue
-        pts = coords[i] + (1.0 / x)[:, None, None] * dirs[None, :, :]  # (radial, angular, 3)
-        inside = np.zeros(pts.shape[:2], dtype=bool)
-        for j in nb:
-            diff = pts - coords[j]
-            inside |= np.einsum("rak,rak->ra", diff, diff) < rho[j] * rho[j]
-        integral = float(wx @ inside.sum(axis=1)) * w_ang
+        pts = (coords[i] + (1.0 / x)[:, None, None] * dirs[None, :, :]).reshape(-1, 3)  # (radial*angular, 3)
+        inside = (cdist(pts, coords[nb], "sqeuclidean") < rho[nb] ** 2).any(axis=1)
+        integral = float(wx @ inside.reshape(len(x), -1).sum(axis=1)) * w_ang
         inv3 = 1.0 / rho[i] ** 3 - 3.0 / (4.0 * math.pi) * integral
         out[i] = inv3 ** (-1.0 / 3.0) if inv3 > 0 else _R_MAX
     out.setflags(write=False)
