@@ -24,6 +24,7 @@ from .solvers.guess import kekule_guess
 from .solvers.threads import blas_threads
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
+from .structure.cavity import cavity_spheres
 from .structure.twist import embed_conformer, twist_factors
 from .structure.readers import mol_from_smiles
 from .units import ev_to_nm
@@ -391,14 +392,21 @@ class Prepared:
     system: PiSystem
     coords: np.ndarray
     twist: np.ndarray | None
+    #: (K, 4) [x, y, z, radius] of the molecule's other atoms incl. hydrogens, for the solvent cavity
+    #: (ppp.structure.cavity); None when no solvent was asked for
+    cavity: np.ndarray | None = None
 
 
 def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | None = None,
-            timer: StageTimer | None = None) -> tuple[Prepared, ...]:
+            timer: StageTimer | None = None, with_cavity: bool | None = None) -> tuple[Prepared, ...]:
     """Perceive the pi-systems of a molecule and place their centres (depiction, input or conformer).
 
     ``bond_length`` (A) scales 2D coordinates; default: the parameter set's standard length.
+    ``with_cavity``: also place the other atoms for the solvent model (default: when options.solvent
+    names a solvent other than the gas phase).
     """
+    if with_cavity is None:
+        with_cavity = options.solvent is not None and not solvent_model.load(options.solvent).is_vacuum
     if bond_length is None:
         bond_length = param_registry.load(options.parameters).bond_length_angstrom
     with maybe_stage(timer, "perception"):
@@ -429,7 +437,9 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
             coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
                                         all_pi_bonds=all_bonds)
             twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
-        out.append(Prepared(sys_, coords, twist))
+            cav = (cavity_spheres(work, sys_.atom_indices, coords, source, bond_length, all_bonds)
+                   if with_cavity else None)
+        out.append(Prepared(sys_, coords, twist, cav))
     return tuple(out)
 
 
@@ -445,7 +455,7 @@ def model_for(prep: Prepared, pset: param_registry.ParameterSet, options: Option
     if solv is None or solv.is_vacuum:
         return model
     return replace(model, reaction=solvent_model.reaction_field(solv, prep.coords, sys_.types,
-                                                                sys_.core_charges, sys_.bonds))
+                                                                sys_.core_charges, sys_.bonds, prep.cavity))
 
 
 def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer | None = None,

@@ -67,6 +67,29 @@ def test_born_radii_laws():
     assert np.ptp(m.reaction.radii) < 1e-12 and 1.8 < m.reaction.radii[0] < 2.5
 
 
+def test_cavity_holds_hydrogens_and_substituents():
+    from ppp.driver import prepare
+    from ppp.structure.readers import mol_from_smiles
+    # benzene: six hydrogens in the plane, C-H 1.09 A (common practice), radius 1.20 A (Bondi 1964)
+    (p,) = prepare(mol_from_smiles("c1ccccc1"), Options(solvent="water"))
+    assert p.cavity.shape == (6, 4)
+    np.testing.assert_allclose(p.cavity[:, 3], 1.20)
+    np.testing.assert_allclose(p.cavity[:, 2], 0.0, atol=1e-9)
+    d = np.linalg.norm(p.cavity[:, None, :3] - p.coords[None], axis=2).min(axis=1)
+    np.testing.assert_allclose(d, 1.09, atol=1e-6)
+    # toluene: the methyl carbon (1.70 A) and three methyl hydrogens, two of them out of the plane
+    (p,) = prepare(mol_from_smiles("Cc1ccccc1"), Options(solvent="water"))
+    assert sorted(p.cavity[:, 3].tolist()).count(1.70) == 1 and len(p.cavity) == 1 + 3 + 5
+    assert np.sum(np.abs(p.cavity[:, 2]) > 0.5) == 2
+    # the gas phase places no cavity (no cost)
+    (p,) = prepare(mol_from_smiles("Cc1ccccc1"), Options())
+    assert p.cavity is None
+    # descreening by the hydrogens makes the Born radii larger
+    bare = sm.born_radii(p.coords, np.full(len(p.coords), 1.70))
+    with_h = model_of("Cc1ccccc1", solvent="water").reaction.radii
+    assert np.all(with_h > bare + 0.05)
+
+
 def _two_electron_energy(h, gam, c):
     """Closed-shell energy of two electrons in orbital c: 2 c.h.c + sum_ij c_i^2 c_j^2 gamma_ij."""
     return 2.0 * c @ h @ c + (c * c) @ gam @ (c * c)

@@ -41,7 +41,7 @@ def prepare_set(entries, options: Options = Options(), bond_length: float = 1.40
     out = []
     for e in entries:
         try:
-            preps = prepare(mol_from_smiles(e.smiles), options, bond_length)
+            preps = prepare(mol_from_smiles(e.smiles), options, bond_length, with_cavity=True)
             out.append(PreparedEntry(e, preps))
         except PPPError as err:
             out.append(PreparedEntry(e, (), str(err.with_molecule(e.name))))

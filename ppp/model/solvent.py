@@ -58,14 +58,11 @@ import numpy as np
 from scipy.spatial.distance import cdist
 
 from ..errors import InputError, ParameterError
+from ..structure.cavity import vdw_radius
 from ..units import COULOMB_EV_ANGSTROM
 
 SOLVENT_FILE = Path(__file__).resolve().parent.parent / "data" / "solvents.toml"
 
-#: Intrinsic (van der Waals) radii, A: Bondi, J. Phys. Chem. 68, 441 (1964); B from Mantina et al.,
-#: J. Phys. Chem. A 113, 5806 (2009). From memory.
-VDW_RADIUS_ANGSTROM = {"C": 1.70, "N": 1.55, "O": 1.52, "F": 1.47, "S": 1.80, "Cl": 1.75, "Br": 1.85,
-                       "B": 1.92}
 #: Quadrature of the Born-radius integral (see module doc).
 _N_RADIAL = 32
 _N_ANGULAR = 302
@@ -147,20 +144,26 @@ def _fibonacci_sphere(n: int) -> np.ndarray:
     return np.column_stack([s * np.cos(phi), s * np.sin(phi), z])
 
 
-def born_radii(coords: np.ndarray, rho: np.ndarray) -> np.ndarray:
+def born_radii(coords: np.ndarray, rho: np.ndarray, cavity: np.ndarray | None = None) -> np.ndarray:
     """Effective Born radii a (N,), A, by the r^-6 descreening integral (Grycuk 2003; module doc).
 
     coords : (N, 3) A;  rho : (N,) intrinsic radii, A. An isolated sphere gives a = rho exactly.
+    cavity : optional (K, 4) rows [x, y, z, radius] of further atoms that belong to the solute
+        (hydrogens, saturated substituents; :func:`ppp.structure.cavity.cavity_spheres`)
     """
+    extra = np.zeros((0, 4)) if cavity is None else np.asarray(cavity, dtype=float).reshape(-1, 4)
     return _born_radii_cached(np.ascontiguousarray(coords, dtype=float).tobytes(),
-                              np.ascontiguousarray(rho, dtype=float).tobytes())
+                              np.ascontiguousarray(rho, dtype=float).tobytes(),
+                              np.ascontiguousarray(extra).tobytes())
 
 
 @lru_cache(maxsize=256)
-def _born_radii_cached(coords_b: bytes, rho_b: bytes) -> np.ndarray:
-    coords = np.frombuffer(coords_b).reshape(-1, 3)
-    rho = np.frombuffer(rho_b)
-    n = len(rho)
+def _born_radii_cached(coords_b: bytes, rho_b: bytes, extra_b: bytes) -> np.ndarray:
+    n = len(rho_b) // 8
+    extra = np.frombuffer(extra_b).reshape(-1, 4)
+    coords = np.vstack([np.frombuffer(coords_b).reshape(-1, 3), extra[:, :3]])
+    rho = np.concatenate([np.frombuffer(rho_b), extra[:, 3]])
+    n_all = len(rho)
     dirs = _fibonacci_sphere(_N_ANGULAR)
     xg, wg = np.polynomial.legendre.leggauss(_N_RADIAL)
     w_ang = 4.0 * math.pi / _N_ANGULAR
@@ -171,7 +174,7 @@ def _born_radii_cached(coords_b: bytes, rho_b: bytes) -> np.ndarray:
         x = 0.5 * (hi - lo) * xg + 0.5 * (hi + lo)
         wx = 0.5 * (hi - lo) * wg * x * x
         d = np.linalg.norm(coords - coords[i], axis=1)
-        nb = np.nonzero((d < _R_MAX + rho) & (np.arange(n) != i))[0]
+        nb = np.nonzero((d < _R_MAX + rho) & (np.arange(n_all) != i))[0]
         if len(nb) == 0:
             out[i] = rho[i]
             continue
@@ -264,18 +267,17 @@ def equivalent_centres(types, bonds) -> np.ndarray:
     return np.array(colour)
 
 
-def reaction_field(solvent: Solvent, coords: np.ndarray, types, core_charges, bonds=None) -> ReactionField:
+def reaction_field(solvent: Solvent, coords: np.ndarray, types, core_charges, bonds=None,
+                   cavity: np.ndarray | None = None) -> ReactionField:
     """Build the reaction field of one chromophore (coords (N, 3) A, N type names, N core charges).
 
+    cavity : optional (K, 4) [x, y, z, radius] of the molecule's other atoms (see :func:`born_radii`)
     bonds : optional (M, 2) pi bonds; the quadrature noise of the Born radii (about 0.1 %) is then
     removed from symmetry-equivalent centres by averaging over :func:`equivalent_centres`, so that a
     symmetric molecule keeps its symmetry.
     """
-    try:
-        rho = np.array([VDW_RADIUS_ANGSTROM[element_of(t)] for t in types])
-    except KeyError as exc:
-        raise ParameterError(f"no van der Waals radius for element {exc.args[0]} in the solvent model") from None
-    radii = born_radii(coords, rho)
+    rho = np.array([vdw_radius(element_of(t)) for t in types])
+    radii = born_radii(coords, rho, cavity)
     if bonds is not None and len(radii):
         cls = equivalent_centres(types, bonds)
         sums = np.bincount(cls, weights=radii)
