@@ -293,7 +293,8 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
     order; ppp.model.solvent) and re-sort the roots; unchanged in the gas phase."""
     if model.reaction is None or not len(res.energies):
         return res
-    e = res.energies + model.reaction.excitation_shift(scf.mo_coeff, model.n_occ, res.amplitudes)
+    e = res.energies + model.reaction.excitation_shift(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ,
+                                                       res.amplitudes, res.multiplicity)
     order = np.argsort(e, kind="stable")
     return replace(res, energies=e[order], amplitudes=res.amplitudes[order])
 

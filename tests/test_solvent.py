@@ -95,12 +95,13 @@ def _two_electron_energy(h, gam, c):
     return 2.0 * c @ h @ c + (c * c) @ gam @ (c * c)
 
 
-def test_reaction_field_scf_two_centre_by_hand():
-    # formaldehyde pi system: C and O.oxo, two electrons. The SCF in a solvent must minimise
-    # G(theta) = E(theta) + E_core - 1/2 f(eps) q.Gamma.q, q_i = Z_i - 2 c_i^2, c = (cos, sin) theta,
-    # found here by a one-dimensional minimisation that does not use the project's Fock matrix.
-    opts = Options(bond_order_beta=False, n_singlets=1, n_triplets=1, solvent="water")
-    m0 = model_of("C=O", bond_order_beta=False, solvent="water")
+def _hand_two_centre(m0, h):
+    """Formaldehyde-type two-centre, two-electron model in a solvent, by hand: the ground state minimises
+    G(theta) = E(theta) + E_core - 1/2 f(eps) q.Gamma.q (q_i = Z_i - 2 c_i^2, c = (cos, sin) theta) by a
+    one-dimensional minimisation that does not use the project's Fock matrix; the vertical singlet and
+    triplet of the one configuration H -> L follow from H_eff = H + V (V = f(eps) Gamma q0 frozen):
+    E_S - E_0 = h'_LL - h'_HH + J_HL + K_HL - J_HH, E_T = E_S - 2 K_HL.
+    Returns (G, c_H, singlet, triplet) without the state-specific term."""
     rf = m0.reaction
     z = m0.core_charges.astype(float)
     f = rf.solvent.f_static
@@ -108,45 +109,70 @@ def test_reaction_field_scf_two_centre_by_hand():
     def g(theta):
         c = np.array([math.cos(theta), math.sin(theta)])
         q = z - 2 * c * c
-        return _two_electron_energy(m0.core, m0.gamma, c) + m0.e_core - 0.5 * f * q @ rf.kernel @ q
+        return 2.0 * c @ h @ c + (c * c) @ m0.gamma @ (c * c) + m0.e_core - 0.5 * f * q @ rf.kernel @ q
 
-    best = minimize_scalar(g, bounds=(0.0, math.pi / 2), method="bounded", options={"xatol": 1e-10})
-    res = solve_model(m0, opts)
-    assert res.e_total == pytest.approx(best.fun, abs=1e-8)
-    c = np.array([math.cos(best.x), math.sin(best.x)])
-    assert res.scf.dens[0, 0] == pytest.approx(2 * c[0] ** 2, abs=1e-6)
-    # the gas-phase solution is less polarised: the solvent pulls more charge onto oxygen
-    gas = solve_model(model_of("C=O", bond_order_beta=False), replace(opts, solvent=None))
-    assert res.scf.dens[1, 1] > gas.scf.dens[1, 1] + 0.01
-
-    # vertical singlet: H_eff = H + V (V = f(eps) Gamma q0 frozen), one configuration H -> L, plus the
-    # state-specific electronic term -1/2 f(n^2) dq.Gamma.dq with dq = c_H^2 - c_L^2 per centre
-    ch = c
-    cl = np.array([-c[1], c[0]])
-    q0 = z - 2 * ch * ch
-    hp = m0.core + np.diag(f * rf.kernel @ q0)
+    best = minimize_scalar(g, bounds=(0.0, math.pi / 2), method="bounded", options={"xatol": 1e-13})
+    ch = np.array([math.cos(best.x), math.sin(best.x)])
+    cl = np.array([-ch[1], ch[0]])
+    hp = h + np.diag(f * rf.kernel @ (z - 2 * ch * ch))
     jhh = (ch * ch) @ m0.gamma @ (ch * ch)
     jhl = (ch * ch) @ m0.gamma @ (cl * cl)
     khl = (ch * cl) @ m0.gamma @ (ch * cl)
-    de = cl @ hp @ cl - ch @ hp @ ch + jhl + khl - jhh
-    dq = ch * ch - cl * cl
-    de += -0.5 * rf.solvent.f_optical * dq @ rf.kernel @ dq
-    assert res.singlets[0].energy_ev == pytest.approx(de, abs=1e-6)
-    # triplet: the same without the exchange term 2 K (E_T = E_S - 2 K for one configuration)
-    assert res.triplets[0].energy_ev == pytest.approx(de - 2 * khl, abs=1e-6)
+    singlet = cl @ hp @ cl - ch @ hp @ ch + jhl + khl - jhh
+    return best.fun, ch, singlet, singlet - 2 * khl
 
 
-def test_excitation_shift_of_one_configuration_by_hand():
-    m = model_of(NITROANILINE, solvent="ethanol")
-    res = solve_model(m, Options(n_singlets=2, n_triplets=0, solvent="ethanol"))
-    n_occ, n_vir = m.n_occ, m.n_centres - m.n_occ
-    amps = np.zeros((1, n_occ, n_vir))
-    amps[0, -1, 0] = 1.0  # pure HOMO -> LUMO
-    c = res.scf.mo_coeff
-    dq = c[:, n_occ - 1] ** 2 - c[:, n_occ] ** 2
-    want = -0.5 * m.reaction.solvent.f_optical * dq @ m.reaction.kernel @ dq
-    assert m.reaction.excitation_shift(c, n_occ, amps)[0] == pytest.approx(want, rel=1e-12)
-    assert want < 0  # electronic polarisation always lowers a state that moves charge
+def test_reaction_field_scf_two_centre_by_hand():
+    opts = Options(bond_order_beta=False, n_singlets=1, n_triplets=1, solvent="water")
+    m0 = model_of("C=O", bond_order_beta=False, solvent="water")
+    g, ch, singlet, triplet = _hand_two_centre(m0, m0.core)
+    res = solve_model(m0, opts)
+    assert res.e_total == pytest.approx(g, abs=1e-8)
+    assert res.scf.dens[0, 0] == pytest.approx(2 * ch[0] ** 2, abs=1e-6)
+    # the gas-phase solution is less polarised: the solvent pulls more charge onto oxygen
+    gas = solve_model(model_of("C=O", bond_order_beta=False), replace(opts, solvent=None))
+    assert res.scf.dens[1, 1] > gas.scf.dens[1, 1] + 0.01
+    # state-specific term -1/2 f(n^2) dq.Gamma.dq with the relaxed dq = -d omega / d h_mu,mu, here by
+    # central differences of the hand-worked excitation energy
+    step = 1e-4
+    for k, (state, mult) in enumerate(((res.singlets[0], 1), (res.triplets[0], 3))):
+        dq = np.zeros(2)
+        for mu in range(2):
+            e = np.zeros((2, 2))
+            e[mu, mu] = step
+            dq[mu] = -(_hand_two_centre(m0, m0.core + e)[2 + k] - _hand_two_centre(m0, m0.core - e)[2 + k]) / (2 * step)
+        want = (singlet, triplet)[k] + m0.reaction.shift_of(dq)[0]
+        assert state.energy_ev == pytest.approx(want, abs=2e-6), mult
+
+
+@pytest.mark.parametrize("solvent", [None, "ethanol"])
+@pytest.mark.parametrize("multiplicity", [1, 3])
+def test_relaxed_charges_are_derivatives_of_the_excitation_energy(solvent, multiplicity):
+    # Z-vector relaxed density (ppp.solvers.relaxed) = d omega / d h_mu,mu: checked by central finite
+    # differences of the model's CIS excitation energies (law of the Hellmann-Feynman / Z-vector theory)
+    from ppp.driver import ground_scf
+    from ppp.solvers import cis
+    from ppp.solvers.relaxed import relaxed_difference_charges
+    opts = Options(bond_order_beta=False, solvent=solvent)
+    m = model_of(NITROANILINE, bond_order_beta=False, solvent=solvent)
+
+    def omegas(model):
+        mm, s = ground_scf(model, replace(opts, max_iter=200))
+        return s, cis.kernel(s.mo_energy, s.mo_coeff, m.gamma, m.n_occ, 3, multiplicity)
+
+    s0, c0 = omegas(m)
+    kern = None if m.reaction is None else m.reaction.solvent.f_static * m.reaction.kernel
+    rel = relaxed_difference_charges(s0.mo_energy, s0.mo_coeff, m.gamma, m.n_occ, c0.amplitudes, multiplicity,
+                                     rf_kernel=kern)
+    step = 1e-4
+    fd = np.zeros_like(rel)
+    for mu in range(m.n_centres):
+        e = np.zeros_like(m.core)
+        e[mu, mu] = step
+        fd[:, mu] = (omegas(replace(m, core=m.core + e))[1].energies
+                     - omegas(replace(m, core=m.core - e))[1].energies) / (2 * step)
+    np.testing.assert_allclose(rel, fd, atol=2e-6)
+    np.testing.assert_allclose(rel.sum(axis=1), 0.0, atol=1e-10)  # one electron moves
 
 
 def test_gas_phase_reduces_exactly():
