@@ -232,3 +232,15 @@ def test_solvent_is_recorded_in_json_and_hdf5(tmp_path):
         grp = next(iter(h5["molecules"].values()))
         assert json.loads(grp.attrs["options"])["solvent"] == "ethanol"
     assert "solvent ethanol" in res.table()
+
+
+def test_relaxed_charges_dense_and_iterative_paths_agree(monkeypatch):
+    from ppp.solvers import relaxed
+    res = ppp.compute(NITROANILINE, n_singlets=4, n_triplets=0, solvent="water")
+    c = res.chromophores[0]
+    m = c.model
+    args = (c.scf.mo_energy, c.scf.mo_coeff, m.gamma, m.n_occ, c.singlet_amplitudes, 1,
+            m.reaction.solvent.f_static * m.reaction.kernel)
+    dense = relaxed.relaxed_difference_charges(*args)
+    monkeypatch.setattr(relaxed, "DENSE_MAX_PAIRS", 0)
+    np.testing.assert_allclose(relaxed.relaxed_difference_charges(*args), dense, atol=1e-8)

@@ -28,7 +28,12 @@ energy the model computes. Tests check it against finite differences of omega.
 from __future__ import annotations
 
 import numpy as np
+import scipy.linalg
 from scipy.sparse.linalg import LinearOperator, cg
+
+#: Up to this many occupied-virtual pairs the orbital Hessian is built and Cholesky-factorised once for
+#: all states; above, each state's equations are solved by conjugate gradients with an O(N^3) product.
+DENSE_MAX_PAIRS = 2500
 
 
 def _two_electron(gamma: np.ndarray, rf_kernel: np.ndarray | None, d: np.ndarray) -> np.ndarray:
@@ -60,6 +65,9 @@ def relaxed_difference_charges(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamm
         m = cv @ k @ co.T
         return (de * k + cv.T @ _two_electron(gamma, rf_kernel, 2.0 * (m + m.T)) @ co).ravel()
 
+    solve = None
+    if de.size <= DENSE_MAX_PAIRS:
+        solve = _dense_solver(de, co, cv, gamma, rf_kernel)
     op = LinearOperator((de.size, de.size), matvec=hess, dtype=float)
     out = []
     for x in np.asarray(amplitudes, dtype=float):
@@ -72,10 +80,33 @@ def relaxed_difference_charges(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamm
         if s:
             lag += s * ((cv.T * wg) @ cv @ x.T - x.T @ ((co.T * wg) @ co))
         lag -= 2.0 * (cv.T @ q @ cv @ x.T - x.T @ co.T @ q @ co)
-        z, info = cg(op, lag.ravel(), rtol=tol, atol=0.0, maxiter=10 * de.size + 100)
+        if solve is not None:
+            z, info = solve(lag.ravel()), 0
+        else:
+            z, info = cg(op, lag.ravel(), rtol=tol, atol=0.0, maxiter=10 * de.size + 100)
         if info != 0:  # the Hessian of a stable SCF minimum is positive definite; fall back to a dense solve
             hm = np.column_stack([hess(e) for e in np.eye(de.size)])
             z = np.linalg.lstsq(hm, lag.ravel(), rcond=None)[0]
         zm = z.reshape(de.shape)
         out.append(np.diagonal(delta) - np.einsum("ma,ai,mi->m", cv, zm, co))
     return np.array(out).reshape(len(out), mo_coeff.shape[0])
+
+
+def _dense_solver(de, co, cv, gamma, rf_kernel):
+    """Build H_ai,bj = delta (e_a - e_i) + 4 (ai|bj) - (ab|ij) - (aj|bi) (+ reaction field, -4 f (ai|Gamma|bj))
+    and return a function solving H z = b (Cholesky; least squares if H is not positive definite)."""
+    nv, no = de.shape
+    n = co.shape[0]
+    vo = (cv[:, :, None] * co[:, None, :]).reshape(n, nv * no)
+    coul = 4.0 * gamma if rf_kernel is None else 4.0 * (gamma - rf_kernel)
+    h = vo.T @ coul @ vo
+    vv = (cv[:, :, None] * cv[:, None, :]).reshape(n, nv * nv)
+    oo = (co[:, :, None] * co[:, None, :]).reshape(n, no * no)
+    h -= (vv.T @ gamma @ oo).reshape(nv, nv, no, no).transpose(0, 2, 1, 3).reshape(nv * no, nv * no)
+    h -= (vo.T @ gamma @ vo).reshape(nv, no, nv, no).transpose(0, 3, 2, 1).reshape(nv * no, nv * no)
+    h[np.diag_indices_from(h)] += de.ravel()
+    try:
+        factor = scipy.linalg.cho_factor(h)
+        return lambda b: scipy.linalg.cho_solve(factor, b)
+    except np.linalg.LinAlgError:
+        return lambda b: np.linalg.lstsq(h, b, rcond=None)[0]
