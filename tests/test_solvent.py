@@ -203,6 +203,10 @@ def test_solvatochromic_expectations():
 
     push = band(NITROANILINE, "ethanol") - band(NITROANILINE, None)
     assert push < -0.2
+    # and the red shift grows with the solvent's polarity (Lippert 1957; Mataga, Kaifu & Koizumi 1956:
+    # the shift follows the orientation polarisability, common practice): gas > cyclohexane > ethanol
+    assert band(NITROANILINE, None) > band(NITROANILINE, "cyclohexane") + 0.1
+    assert band(NITROANILINE, "cyclohexane") > band(NITROANILINE, "ethanol") + 0.05
     assert abs(band("c1ccc2ccccc2c1", "ethanol") - band("c1ccc2ccccc2c1", None)) < 0.01
     cyanine = "CN(C)C=CC=CC=[N+](C)C"
     assert abs(band(cyanine, "methanol") - band(cyanine, None)) < 0.3 * abs(push)
