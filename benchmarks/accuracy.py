@@ -112,9 +112,9 @@ def main(argv=None) -> int:
         summaries.append((_label(set_name, vb, c, solv), evaluation.by_class(), training, prov, t_prep, t_eval))
 
     print("\nMean absolute error, eV (nm), per class; n = rows, x = rows without a matched state")
-    head = f"| {'configuration':<34} | " + " | ".join(f"{k:>13}" for k in CLASS_ORDER) + " |"
+    head = f"| {'configuration':<38} | " + " | ".join(f"{k:>13}" for k in CLASS_ORDER) + " |"
     print(head)
-    print("|" + "-" * 36 + "|" + "|".join("-" * 15 for _ in CLASS_ORDER) + "|")
+    print("|" + "-" * 40 + "|" + "|".join("-" * 15 for _ in CLASS_ORDER) + "|")
     counts = None
     for label, by, training, prov, *_ in summaries:
         cells = []
@@ -122,25 +122,25 @@ def main(argv=None) -> int:
             s = by.get(k)
             cells.append(f"{s.mae_ev:.3f} ({s.mae_nm:4.0f})" + ("x" * min(s.n_failed, 1)) if s else "-")
         tag = " [training]" if training else ""
-        print(f"| {label + tag:<34} | " + " | ".join(f"{c:>13}" for c in cells) + " |")
+        print(f"| {label + tag:<38} | " + " | ".join(f"{c:>13}" for c in cells) + " |")
         counts = by
-    print("| n rows" + " " * 29 + "| " + " | ".join(f"{counts[k].n:>13}" for k in CLASS_ORDER) + " |")
+    print("| n rows" + " " * 33 + "| " + " | ".join(f"{counts[k].n:>13}" for k in CLASS_ORDER) + " |")
     for label, by, training, prov, *_ in summaries:
         if training and "cross_validated_mae_ev" in prov:
             cv = prov["cross_validated_mae_ev"]
-            print(f"| {label.split()[0] + ' cross-validated (provenance)':<34} | " +
+            print(f"| {label.split()[0] + ' cross-validated (provenance)':<38} | " +
                   " | ".join(f"{cv[k]:>13.3f}" if k in cv else f"{'-':>13}" for k in CLASS_ORDER) + " |")
             break
     print("\nMean signed error (computed - measured), eV, per class (> 0: predicted too blue)")
     for label, by, *_ in summaries:
-        print(f"| {label:<34} | " + " | ".join(f"{by[k].mean_signed_ev:>+13.3f}" if k in by else f"{'-':>13}"
+        print(f"| {label:<38} | " + " | ".join(f"{by[k].mean_signed_ev:>+13.3f}" if k in by else f"{'-':>13}"
                                               for k in CLASS_ORDER) + " |")
     print("\nfailures (unmatched or errors) per configuration:")
     for label, by, *_ in summaries:
         print(f"  {label}: {by['all'].n_failed}")
     print("\ntiming (s): prepare (once per geometry) / evaluate")
     for label, by, training, prov, t_prep, t_eval in summaries:
-        print(f"  {label:<34} {t_prep:7.1f} {t_eval:7.1f}")
+        print(f"  {label:<38} {t_prep:7.1f} {t_eval:7.1f}")
     print(f"  wall {wall:.1f} s with {args.jobs} worker(s)")
 
     if args.class_fits:

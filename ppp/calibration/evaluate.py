@@ -12,6 +12,7 @@ import numpy as np
 
 from ..analysis.properties import oscillator_strengths, transition_dipoles
 from ..driver import Options, Prepared, ground_scf, model_for, prepare, solvent_corrected
+from ..driver import _seek_stable as seek_stable
 from ..errors import PPPError
 from ..model.params import ParameterSet
 from ..model.solvent import reference_solvent
@@ -58,13 +59,18 @@ def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets
     states = []
     for k, prep in enumerate(preps):
         dens0 = warm.get(id(prep)) if warm is not None else None
-        model, scf = ground_scf(model_for(prep, pset, options), options, k, dens0=dens0)
-        if warm is not None:
-            warm[id(prep)] = scf.dens
+        model0 = model_for(prep, pset, options)
+        model, scf = ground_scf(model0, options, k, dens0=dens0)
         res = solvent_corrected(cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ,
                                                   n_singlets, 1), scf, model)
         if len(res.energies) and res.energies[0] <= 0:
+            # the SCF may sit on a saddle point: look for a stable solution as the driver does
+            model, scf, res = seek_stable(model0, model, scf, res, replace(options, n_singlets=n_singlets), k,
+                                          None)
+        if len(res.energies) and res.energies[0] <= 0:
             continue  # unstable reference: no trustworthy state from this chromophore
+        if warm is not None:
+            warm[id(prep)] = scf.dens
         tdm = transition_dipoles(scf.mo_coeff, model.n_occ, res.amplitudes, model.coords)
         f = oscillator_strengths(res.energies, tdm)
         states.extend(_Singlet(float(e), float(x)) for e, x in zip(res.energies, f))
