@@ -248,3 +248,10 @@ def test_relaxed_charges_dense_and_iterative_paths_agree(monkeypatch):
     dense = relaxed.relaxed_difference_charges(*args)
     monkeypatch.setattr(relaxed, "DENSE_MAX_PAIRS", 0)
     np.testing.assert_allclose(relaxed.relaxed_difference_charges(*args), dense, atol=1e-8)
+
+
+def test_no_gas_phase_uncertainty_on_a_solvent_run():
+    from ppp.calibration.uncertainty import for_result
+    assert for_result(ppp.compute(NITROANILINE, n_triplets=0)) is not None
+    assert for_result(ppp.compute(NITROANILINE, n_triplets=0, solvent="gas")) is not None
+    assert for_result(ppp.compute(NITROANILINE, n_triplets=0, solvent="ethanol")) is None

@@ -4,7 +4,9 @@ A parameter set may carry an ``[uncertainty]`` table: the mean absolute error (e
 per chemical class, measured against a reference set, out of sample (k-fold cross-validated for a fitted
 set; the plain error for a set that was never fitted to that reference). A predicted band is given the
 figure of its molecule's class (:func:`ppp.calibration.classes.classify`), or the overall figure ("all")
-when the class has none. The figure in nm follows from d(lambda) = lambda dE / E.
+when the class has none. The figure in nm follows from d(lambda) = lambda dE / E. The figures belong to
+gas-phase runs (the default); a run with the solvent reaction field gets none (docs/accuracy.md gives the
+measured errors of that configuration).
 """
 from __future__ import annotations
 
@@ -48,6 +50,9 @@ def for_result(result, state=None) -> BandUncertainty | None:
     state = state if state is not None else result.first_bright
     if state is None:
         return None
+    solvent = getattr(result.options, "solvent", None)
+    if solvent is not None and solvent.strip().lower() not in ("gas", "vacuum", "gas phase", "none"):
+        return None  # the class errors were measured without the solvent model: no figure applies
     try:
         pset = param_registry.load(result.options.parameters)
         cls = classify_smiles(result.canonical_smiles)
