@@ -383,6 +383,17 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
         )
 
 
+def _without_hydrogens(mol: Chem.Mol) -> Chem.Mol:
+    """Heavy-atom copy of a molecule with explicit hydrogens (e.g. from an SDF record); the hydrogen
+    counts move onto the heavy atoms (without the property-cache update they would read 0, and the
+    pi-system perception would see radicals)."""
+    if not any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()):
+        return mol
+    work = Chem.RemoveHs(mol, sanitize=False)
+    work.UpdatePropertyCache(strict=False)
+    return work
+
+
 @dataclass(frozen=True)
 class Prepared:
     """Geometry-side input of one chromophore, independent of the parameter values.
@@ -411,7 +422,7 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     if bond_length is None:
         bond_length = param_registry.load(options.parameters).bond_length_angstrom
     with maybe_stage(timer, "perception"):
-        work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+        work = _without_hydrogens(mol)
         systems = perceive(work)
     for k, sys_ in enumerate(systems):
         if sys_.n_centres > options.max_centres:
@@ -506,7 +517,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
             mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
             if not smiles_in:
                 smiles_in = Chem.MolToSmiles(mol)
-            canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
+            canonical = Chem.MolToSmiles(_without_hydrogens(mol))
         with maybe_stage(timer, "parameters"):
             pset = param_registry.load(opts.parameters)
         chroms = []
