@@ -144,25 +144,27 @@ def main(argv=None) -> int:
     print(f"  wall {wall:.1f} s with {args.jobs} worker(s)")
 
     if args.class_fits:
-        class_fits(ref, args.folds)
+        for solv in solv_flags:
+            class_fits(ref, args.folds, solv)
     return 0
 
 
-def class_fits(ref, k_max: int) -> None:
+def class_fits(ref, k_max: int, solvents: bool = False) -> None:
     """For each class: default-settings error, then ppp fit on the class with k-fold CV, once with fixed
     beta (ppp fit --bond-order-beta off) and once with bond-order beta on (ppp fit --bond-order-beta on)."""
     name = params.default_name()
     pset = params.load(name)
     base_opts = Options(parameters=name, n_triplets=0)
-    print(f"\nPer-class calibration, starting from the default set '{name}'; target: cross-validated MAE "
-          f"<= 2/3 of the default's")
+    print(f"\nPer-class calibration, starting from the default set '{name}'"
+          f"{' (every row in its own solvent, reaction field)' if solvents else ' (gas phase)'}; target: "
+          f"cross-validated MAE <= 2/3 of the default's")
     print(f"| {'class':<14} | {'n':>3} | {'default eV':>10} | {'fit options':<11} | {'training eV':>11} | "
           f"{'CV eV':>7} | {'CV/default':>10} | {'<= 2/3':>6} | fitted values")
     print("|" + "|".join("-" * w for w in (16, 5, 12, 13, 13, 9, 12, 8, 15)) + "|")
     for cls in ref.classes:
         prep = tuple(pe for pe in ev.prepare_set(ref.of_class(cls), base_opts, pset.bond_length_angstrom)
                      if not pe.error)
-        default_mae = ev.evaluate(prep, pset, base_opts).by_class()["all"].mae_ev
+        default_mae = ev.evaluate(prep, pset, base_opts, reference_solvents=solvents).by_class()["all"].mae_ev
         plist = [fitting.FitParameter("beta", "C-C"), fitting.FitParameter("u", "C")]
         plist += fitting.default_parameters(prep, pset, min_count=max(2, len(prep) // 4))
         k = min(k_max, len(prep))
@@ -170,8 +172,8 @@ def class_fits(ref, k_max: int) -> None:
         for label, vb in (("fixed beta", False), ("bo-beta", True)):
             opts = Options(parameters=name, n_triplets=0, bond_order_beta=vb)
             t0 = time.perf_counter()
-            res = fitting.fit(prep, pset, plist, opts, max_nfev=15)
-            cv = fitting.cross_validate(prep, pset, plist, opts, k=k, max_nfev=15)
+            res = fitting.fit(prep, pset, plist, opts, max_nfev=15, reference_solvents=solvents)
+            cv = fitting.cross_validate(prep, pset, plist, opts, k=k, max_nfev=15, reference_solvents=solvents)
             train_mae = float(np.nanmean(np.abs(res.energies - meas)))
             cv_mae = float(np.nanmean(np.abs(cv.energies - meas)))
             ratio = cv_mae / default_mae
