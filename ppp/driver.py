@@ -300,10 +300,11 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
 
 
 def _singlets(scf, model, options, timer) -> cis_solver.CISResult:
+    """CIS singlets on the SCF orbitals, without the solvent's state-specific term (the stability tests
+    look at these roots; :func:`solvent_corrected` is applied afterwards)."""
     with maybe_stage(timer, "CIS singlets"):
-        res = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
-                                solver=options.cis_solver, dipole_coords=model.coords)
-        return solvent_corrected(res, scf, model)
+        return cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
+                                 solver=options.cis_solver, dipole_coords=model.coords)
 
 
 def _unstable(sing: cis_solver.CISResult) -> bool:
@@ -365,14 +366,27 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
             f"closed-shell ground state of chromophore {index + 1} is unstable and no stable closed-shell "
             f"solution was found (lowest singlet excitation {sing.energies[0]:.3f} eV <= 0): open-shell or "
             f"biradical character")
+    if model.reaction is not None:
+        with maybe_stage(timer, "solvent term"):
+            sing = solvent_corrected(sing, scf, model)
+        if _unstable(sing):
+            raise UnsupportedError(
+                f"chromophore {index + 1}: the solvent's state-specific term puts a singlet below the ground "
+                f"state ({sing.energies[0]:.3f} eV): the first-order solvent treatment breaks down here")
     with maybe_stage(timer, "CIS triplets"):
-        trip = solvent_corrected(cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ,
-                                                   options.n_triplets, 3, solver=options.cis_solver), scf, model)
+        trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3,
+                                 solver=options.cis_solver)
     notes = []
     if len(trip.energies) and trip.energies[0] <= 0.0:
         notes.append(f"triplet instability of the closed-shell reference (lowest CIS triplet "
                      f"{trip.energies[0]:.3f} eV <= 0): triplet energies not reported")
         trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
+    elif model.reaction is not None and len(trip.energies):
+        trip = solvent_corrected(trip, scf, model)
+        if trip.energies[0] <= 0.0:
+            notes.append(f"the solvent's state-specific term puts the lowest triplet at {trip.energies[0]:.3f} "
+                         f"eV <= 0 (first-order solvent treatment breaks down): triplet energies not reported")
+            trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
     with maybe_stage(timer, "properties"):
         return ChromophoreResult(
             index=index,

@@ -61,14 +61,14 @@ def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets
         dens0 = warm.get(id(prep)) if warm is not None else None
         model0 = model_for(prep, pset, options)
         model, scf = ground_scf(model0, options, k, dens0=dens0)
-        res = solvent_corrected(cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ,
-                                                  n_singlets, 1), scf, model)
+        res = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, n_singlets, 1)
         if len(res.energies) and res.energies[0] <= 0:
             # the SCF may sit on a saddle point: look for a stable solution as the driver does
             model, scf, res = seek_stable(model0, model, scf, res, replace(options, n_singlets=n_singlets), k,
                                           None)
+        res = solvent_corrected(res, scf, model)
         if len(res.energies) and res.energies[0] <= 0:
-            continue  # unstable reference: no trustworthy state from this chromophore
+            continue  # unstable reference (or solvent term breakdown): no trustworthy state from it
         if warm is not None:
             warm[id(prep)] = scf.dens
         tdm = transition_dipoles(scf.mo_coeff, model.n_occ, res.amplitudes, model.coords)
