@@ -4,12 +4,12 @@ chemical class and overall, in eV and nm, for every parameter set and option com
     PYTHONPATH=. python benchmarks/accuracy.py                 # all sets, planar and conformer geometry
     PYTHONPATH=. python benchmarks/accuracy.py --class-fits    # plus per-class ppp fit with k-fold CV
     PYTHONPATH=. python benchmarks/accuracy.py --quick         # planar geometry only
-    PYTHONPATH=. python benchmarks/accuracy.py --solvents both # gas phase and each entry's own solvent
+    PYTHONPATH=. python benchmarks/accuracy.py --solvents gas  # gas phase only (ppp's default model)
 
-Solvent: by default every molecule is computed in the gas phase (the default of ppp). With
-``--solvents reference`` (or ``both``) each entry is also computed in the solvent of its measurement (the
-CSV's solvent column, qualifiers such as "(acidic)" dropped) with the generalized-Born reaction field of
-ppp.model.solvent; those rows are labelled "solv".
+Solvent: by default (``--solvents both``) every configuration is evaluated twice: in the gas phase (the
+default of ppp) and with each entry in the solvent of its measurement (the CSV's solvent column,
+qualifiers such as "(acidic)" dropped) with the generalized-Born reaction field of ppp.model.solvent;
+those rows are labelled "solv". ``--solvents reference`` gives only the latter.
 
 A set that was fitted to this same reference set (its file has a [provenance] table naming the same
 SHA-256) is marked "training": its figures on the reference set are training errors, and the
@@ -79,7 +79,7 @@ def main(argv=None) -> int:
     ap.add_argument("--class-fits", action="store_true", help="per-class ppp fit with cross-validation")
     ap.add_argument("--jobs", type=int, default=1, help="worker processes (the machine has 2 cores)")
     ap.add_argument("--folds", type=int, default=5)
-    ap.add_argument("--solvents", choices=("gas", "reference", "both"), default="gas",
+    ap.add_argument("--solvents", choices=("gas", "reference", "both"), default="both",
                     help="gas phase, each entry's own measurement solvent (reaction field), or both")
     args = ap.parse_args(argv)
 
