@@ -4,6 +4,12 @@ chemical class and overall, in eV and nm, for every parameter set and option com
     PYTHONPATH=. python benchmarks/accuracy.py                 # all sets, planar and conformer geometry
     PYTHONPATH=. python benchmarks/accuracy.py --class-fits    # plus per-class ppp fit with k-fold CV
     PYTHONPATH=. python benchmarks/accuracy.py --quick         # planar geometry only
+    PYTHONPATH=. python benchmarks/accuracy.py --solvents gas  # gas phase only (ppp's default model)
+
+Solvent: by default (``--solvents both``) every configuration is evaluated twice: in the gas phase (the
+default of ppp) and with each entry in the solvent of its measurement (the CSV's solvent column,
+qualifiers such as "(acidic)" dropped) with the generalized-Born reaction field of ppp.model.solvent;
+those rows are labelled "solv". ``--solvents reference`` gives only the latter.
 
 A set that was fitted to this same reference set (its file has a [provenance] table naming the same
 SHA-256) is marked "training": its figures on the reference set are training errors, and the
@@ -43,7 +49,7 @@ def _run_geometry(args):
     prep = ev.prepare_set(ref.entries, Options(coordinates=coords), 1.40)
     t_prep = time.perf_counter() - t0
     out = []
-    for set_name, vb in combos:
+    for set_name, vb, solv in combos:
         pset = params.load(set_name)
         if pset.bond_length_angstrom != 1.40 and coords == "depiction":
             prep_s = ev.prepare_set(ref.entries, Options(coordinates=coords), pset.bond_length_angstrom)
@@ -51,8 +57,8 @@ def _run_geometry(args):
             prep_s = prep
         opts = Options(parameters=set_name, bond_order_beta=vb, coordinates=coords, n_triplets=0)
         t1 = time.perf_counter()
-        result = ev.evaluate(prep_s, pset, opts)
-        out.append((set_name, vb, coords, result.energies, t_prep, time.perf_counter() - t1))
+        result = ev.evaluate(prep_s, pset, opts, reference_solvents=solv)
+        out.append((set_name, vb, coords, solv, result.energies, t_prep, time.perf_counter() - t1))
     return out
 
 
@@ -60,8 +66,9 @@ def _provenance(pset) -> dict:
     return tomllib.loads(pset.text).get("provenance", {})
 
 
-def _label(set_name, vb, coords):
-    return f"{set_name} {'bo-beta' if vb else 'fixed-beta'} {'3D+twist' if coords == 'conformer' else 'planar'}"
+def _label(set_name, vb, coords, solv=False):
+    return (f"{set_name} {'bo-beta' if vb else 'fixed-beta'} {'3D+twist' if coords == 'conformer' else 'planar'}"
+            f"{' solv' if solv else ''}")
 
 
 def main(argv=None) -> int:
@@ -72,15 +79,21 @@ def main(argv=None) -> int:
     ap.add_argument("--class-fits", action="store_true", help="per-class ppp fit with cross-validation")
     ap.add_argument("--jobs", type=int, default=1, help="worker processes (the machine has 2 cores)")
     ap.add_argument("--folds", type=int, default=5)
+    ap.add_argument("--solvents", choices=("gas", "reference", "both"), default="both",
+                    help="gas phase, each entry's own measurement solvent (reaction field), or both")
     args = ap.parse_args(argv)
 
     ref = reference.load(args.reference)
     sets = args.sets.split(",") if args.sets else params.available()
     coords = ("depiction",) if args.quick else ("depiction", "conformer")
-    combos = [(s, vb) for s in sets for vb in (False, True)]
+    solv_flags = {"gas": (False,), "reference": (True,), "both": (False, True)}[args.solvents]
+    combos = [(s, vb, sv) for s in sets for vb in (False, True) for sv in solv_flags]
     jobs = [(args.reference, c, combos) for c in coords]
     print(f"reference {args.reference} [{ref.sha256[:12]}], {len(ref.entries)} bands, "
           f"{len(ref.classes)} classes; default set '{params.default_name()}'")
+    if args.solvents != "gas":
+        print("rows marked 'solv': each entry computed in the solvent of its measurement (solvent column of the "
+              "reference CSV) with the generalized-Born reaction field (ppp.model.solvent); others: gas phase")
     t0 = time.perf_counter()
     if args.jobs > 1:
         with ProcessPoolExecutor(args.jobs) as pool:
@@ -91,17 +104,17 @@ def main(argv=None) -> int:
 
     measured = np.array([e.energy_ev for e in ref.entries])
     summaries = []
-    for set_name, vb, c, energies, t_prep, t_eval in results:
+    for set_name, vb, c, solv, energies, t_prep, t_eval in results:
         evaluation = ev.Evaluation(ref.entries, energies, measured)
         pset = params.load(set_name)
         prov = _provenance(pset)
         training = prov.get("reference_sha256") == ref.sha256
-        summaries.append((_label(set_name, vb, c), evaluation.by_class(), training, prov, t_prep, t_eval))
+        summaries.append((_label(set_name, vb, c, solv), evaluation.by_class(), training, prov, t_prep, t_eval))
 
     print("\nMean absolute error, eV (nm), per class; n = rows, x = rows without a matched state")
-    head = f"| {'configuration':<34} | " + " | ".join(f"{k:>13}" for k in CLASS_ORDER) + " |"
+    head = f"| {'configuration':<38} | " + " | ".join(f"{k:>13}" for k in CLASS_ORDER) + " |"
     print(head)
-    print("|" + "-" * 36 + "|" + "|".join("-" * 15 for _ in CLASS_ORDER) + "|")
+    print("|" + "-" * 40 + "|" + "|".join("-" * 15 for _ in CLASS_ORDER) + "|")
     counts = None
     for label, by, training, prov, *_ in summaries:
         cells = []
@@ -109,43 +122,49 @@ def main(argv=None) -> int:
             s = by.get(k)
             cells.append(f"{s.mae_ev:.3f} ({s.mae_nm:4.0f})" + ("x" * min(s.n_failed, 1)) if s else "-")
         tag = " [training]" if training else ""
-        print(f"| {label + tag:<34} | " + " | ".join(f"{c:>13}" for c in cells) + " |")
+        print(f"| {label + tag:<38} | " + " | ".join(f"{c:>13}" for c in cells) + " |")
         counts = by
-    print("| n rows" + " " * 29 + "| " + " | ".join(f"{counts[k].n:>13}" for k in CLASS_ORDER) + " |")
+    print("| n rows" + " " * 33 + "| " + " | ".join(f"{counts[k].n:>13}" for k in CLASS_ORDER) + " |")
     for label, by, training, prov, *_ in summaries:
         if training and "cross_validated_mae_ev" in prov:
             cv = prov["cross_validated_mae_ev"]
-            print(f"| {label.split()[0] + ' cross-validated (provenance)':<34} | " +
+            print(f"| {label.split()[0] + ' cross-validated (provenance)':<38} | " +
                   " | ".join(f"{cv[k]:>13.3f}" if k in cv else f"{'-':>13}" for k in CLASS_ORDER) + " |")
             break
+    print("\nMean signed error (computed - measured), eV, per class (> 0: predicted too blue)")
+    for label, by, *_ in summaries:
+        print(f"| {label:<38} | " + " | ".join(f"{by[k].mean_signed_ev:>+13.3f}" if k in by else f"{'-':>13}"
+                                              for k in CLASS_ORDER) + " |")
     print("\nfailures (unmatched or errors) per configuration:")
     for label, by, *_ in summaries:
         print(f"  {label}: {by['all'].n_failed}")
     print("\ntiming (s): prepare (once per geometry) / evaluate")
     for label, by, training, prov, t_prep, t_eval in summaries:
-        print(f"  {label:<34} {t_prep:7.1f} {t_eval:7.1f}")
+        print(f"  {label:<38} {t_prep:7.1f} {t_eval:7.1f}")
     print(f"  wall {wall:.1f} s with {args.jobs} worker(s)")
 
     if args.class_fits:
-        class_fits(ref, args.folds)
+        for solv in solv_flags:
+            class_fits(ref, args.folds, solv)
     return 0
 
 
-def class_fits(ref, k_max: int) -> None:
+def class_fits(ref, k_max: int, solvents: bool = False) -> None:
     """For each class: default-settings error, then ppp fit on the class with k-fold CV, once with fixed
     beta (ppp fit --bond-order-beta off) and once with bond-order beta on (ppp fit --bond-order-beta on)."""
     name = params.default_name()
     pset = params.load(name)
     base_opts = Options(parameters=name, n_triplets=0)
-    print(f"\nPer-class calibration, starting from the default set '{name}'; target: cross-validated MAE "
-          f"<= 2/3 of the default's")
+    print(f"\nPer-class calibration, starting from the default set '{name}'"
+          f"{' (every row in its own solvent, reaction field)' if solvents else ' (gas phase)'}; target: "
+          f"cross-validated MAE <= 2/3 of the default's")
     print(f"| {'class':<14} | {'n':>3} | {'default eV':>10} | {'fit options':<11} | {'training eV':>11} | "
           f"{'CV eV':>7} | {'CV/default':>10} | {'<= 2/3':>6} | fitted values")
     print("|" + "|".join("-" * w for w in (16, 5, 12, 13, 13, 9, 12, 8, 15)) + "|")
     for cls in ref.classes:
         prep = tuple(pe for pe in ev.prepare_set(ref.of_class(cls), base_opts, pset.bond_length_angstrom)
                      if not pe.error)
-        default_mae = ev.evaluate(prep, pset, base_opts).by_class()["all"].mae_ev
+        default_mae = ev.evaluate(prep, pset, base_opts, reference_solvents=solvents).by_class()["all"].mae_ev
         plist = [fitting.FitParameter("beta", "C-C"), fitting.FitParameter("u", "C")]
         plist += fitting.default_parameters(prep, pset, min_count=max(2, len(prep) // 4))
         k = min(k_max, len(prep))
@@ -153,8 +172,8 @@ def class_fits(ref, k_max: int) -> None:
         for label, vb in (("fixed beta", False), ("bo-beta", True)):
             opts = Options(parameters=name, n_triplets=0, bond_order_beta=vb)
             t0 = time.perf_counter()
-            res = fitting.fit(prep, pset, plist, opts, max_nfev=15)
-            cv = fitting.cross_validate(prep, pset, plist, opts, k=k, max_nfev=15)
+            res = fitting.fit(prep, pset, plist, opts, max_nfev=15, reference_solvents=solvents)
+            cv = fitting.cross_validate(prep, pset, plist, opts, k=k, max_nfev=15, reference_solvents=solvents)
             train_mae = float(np.nanmean(np.abs(res.energies - meas)))
             cv_mae = float(np.nanmean(np.abs(cv.energies - meas)))
             ratio = cv_mae / default_mae

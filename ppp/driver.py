@@ -14,6 +14,7 @@ from .analysis.properties import (Configuration, GroundState, dominant_configura
                                   oscillator_strengths, polarization, transition_dipoles)
 from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
 from .model import params as param_registry
+from .model import solvent as solvent_model
 from .model import variable_beta
 from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
@@ -23,6 +24,7 @@ from .solvers.guess import kekule_guess
 from .solvers.threads import blas_threads
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
+from .structure.cavity import cavity_spheres
 from .structure.twist import embed_conformer, twist_factors
 from .structure.readers import mol_from_smiles
 from .units import ev_to_nm
@@ -56,6 +58,8 @@ class Options:
     bond_order_beta : iterate beta with the SCF bond orders (True/False; None: the parameter set's choice)
     twist : scale beta by |cos| of the angle between p axes when coordinates are 3D
     conformer_seed : random seed of the conformer embedding
+    solvent : solvent name (ppp/data/solvents.toml, e.g. "ethanol") for the generalized-Born reaction
+        field of ppp.model.solvent; None (default) or "gas": gas phase
     """
 
     parameters: str | None = None
@@ -70,6 +74,7 @@ class Options:
     bond_order_beta: bool | None = None
     twist: bool = True
     conformer_seed: int = 42
+    solvent: str | None = None
 
     def __post_init__(self):
         for name in ("n_singlets", "n_triplets"):
@@ -84,6 +89,8 @@ class Options:
         if self.cis_solver not in cis_solver.SOLVERS:
             raise InputError(
                 f"unknown CIS solver '{self.cis_solver}'; valid: {', '.join(cis_solver.SOLVERS)}")
+        if self.solvent is not None:
+            solvent_model.load(self.solvent)  # InputError naming the valid solvents
         if self.gamma is not None and self.gamma not in param_registry.GAMMA_FORMULAS:
             raise InputError(
                 f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
@@ -133,8 +140,9 @@ class ChromophoreResult:
 
     @property
     def e_total(self) -> float:
-        """Total pi energy (electronic + core-core repulsion), eV."""
-        return self.scf.e_elec + self.model.e_core
+        """Total pi energy (electronic + core-core repulsion; in a solvent the ground-state free energy
+        including the reaction-field term), eV."""
+        return self.scf.e_elec + self.model.e_core + self.model.e_reaction
 
     @property
     def homo_ev(self) -> float:
@@ -243,14 +251,22 @@ def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0
     Returns (model, scf): the model carries the final core Hamiltonian. Raises ConvergenceError.
     """
     kw = dict(max_iter=options.max_iter, alt_dens0=dens_guess, alt_first=model.n_centres >= KEKULE_START_FROM)
-    if model.bond_order_beta is not None:
+    rf = model.reaction
+    if model.bond_order_beta is not None or rf is not None:
+        settings = model.bond_order_beta or variable_beta.BondOrderBeta(pairs=())
         try:
             vb = variable_beta.iterate(model.core, model.gamma, model.n_occ, model.types, model.bonds,
-                                       model.bond_order_beta, scf_solver.kernel, dens0=dens0,
-                                       scf_iterate=scf_solver.iterate, **kw)
+                                       settings, scf_solver.kernel, dens0=dens0, scf_iterate=scf_solver.iterate,
+                                       diag_update=None if rf is None else rf.potential, **kw)
         except ConvergenceError as err:
             raise ConvergenceError(f"chromophore {index + 1} ({model.n_centres} centres): {err.reason}") from None
-        return replace(model, core=vb.core), vb.scf
+        e_rf = 0.0
+        if rf is not None:
+            # the SCF energy counts the reaction potential V as a one-electron term, sum_i P_ii V_i; the
+            # free energy has G_rf = -1/2 f q.Gamma.q instead (ppp.model.solvent)
+            d = vb.scf.dens
+            e_rf = rf.energy(d) - float(np.diagonal(d) @ rf.potential(d))
+        return replace(model, core=vb.core, e_reaction=e_rf), vb.scf
     scf = scf_solver.kernel(model.core, model.gamma, model.n_occ, dens0=dens0, **kw)
     if not scf.converged:
         raise ConvergenceError(
@@ -272,7 +288,20 @@ def solve_model(model: Model, options: Options = Options(), index: int = 0,
         return _solve_model(model, options, index, atom_indices, timer, dens_guess)
 
 
+def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solver.CISResult:
+    """Add the electronic-polarisation term of the excited states in a solvent (state-specific, first
+    order; ppp.model.solvent) and re-sort the roots; unchanged in the gas phase."""
+    if model.reaction is None or not len(res.energies):
+        return res
+    e = res.energies + model.reaction.excitation_shift(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ,
+                                                       res.amplitudes, res.multiplicity)
+    order = np.argsort(e, kind="stable")
+    return replace(res, energies=e[order], amplitudes=res.amplitudes[order])
+
+
 def _singlets(scf, model, options, timer) -> cis_solver.CISResult:
+    """CIS singlets on the SCF orbitals, without the solvent's state-specific term (the stability tests
+    look at these roots; :func:`solvent_corrected` is applied afterwards)."""
     with maybe_stage(timer, "CIS singlets"):
         return cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
                                  solver=options.cis_solver, dipole_coords=model.coords)
@@ -295,7 +324,7 @@ def _seek_stable(model0: Model, model: Model, scf, sing, options, index, timer):
     """
     with maybe_stage(timer, "stability following"):
         stable = stability.follow(model.core, model.gamma, model.n_occ, scf, max_iter=options.max_iter)
-    if model0.bond_order_beta is None:
+    if model0.bond_order_beta is None and model0.reaction is None:
         if stable is not None and stable is not scf:
             scf = stable
             sing = _singlets(scf, model, options, timer)
@@ -337,6 +366,13 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
             f"closed-shell ground state of chromophore {index + 1} is unstable and no stable closed-shell "
             f"solution was found (lowest singlet excitation {sing.energies[0]:.3f} eV <= 0): open-shell or "
             f"biradical character")
+    if model.reaction is not None:
+        with maybe_stage(timer, "solvent term"):
+            sing = solvent_corrected(sing, scf, model)
+        if _unstable(sing):
+            raise UnsupportedError(
+                f"chromophore {index + 1}: the solvent's state-specific term puts a singlet below the ground "
+                f"state ({sing.energies[0]:.3f} eV): the first-order solvent treatment breaks down here")
     with maybe_stage(timer, "CIS triplets"):
         trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3,
                                  solver=options.cis_solver)
@@ -345,6 +381,12 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
         notes.append(f"triplet instability of the closed-shell reference (lowest CIS triplet "
                      f"{trip.energies[0]:.3f} eV <= 0): triplet energies not reported")
         trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
+    elif model.reaction is not None and len(trip.energies):
+        trip = solvent_corrected(trip, scf, model)
+        if trip.energies[0] <= 0.0:
+            notes.append(f"the solvent's state-specific term puts the lowest triplet at {trip.energies[0]:.3f} "
+                         f"eV <= 0 (first-order solvent treatment breaks down): triplet energies not reported")
+            trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
     with maybe_stage(timer, "properties"):
         return ChromophoreResult(
             index=index,
@@ -353,6 +395,17 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
             singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
             singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
         )
+
+
+def _without_hydrogens(mol: Chem.Mol) -> Chem.Mol:
+    """Heavy-atom copy of a molecule with explicit hydrogens (e.g. from an SDF record); the hydrogen
+    counts move onto the heavy atoms (without the property-cache update they would read 0, and the
+    pi-system perception would see radicals)."""
+    if not any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()):
+        return mol
+    work = Chem.RemoveHs(mol, sanitize=False)
+    work.UpdatePropertyCache(strict=False)
+    return work
 
 
 @dataclass(frozen=True)
@@ -365,18 +418,25 @@ class Prepared:
     system: PiSystem
     coords: np.ndarray
     twist: np.ndarray | None
+    #: (K, 4) [x, y, z, radius] of the molecule's other atoms incl. hydrogens, for the solvent cavity
+    #: (ppp.structure.cavity); None when no solvent was asked for
+    cavity: np.ndarray | None = None
 
 
 def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | None = None,
-            timer: StageTimer | None = None) -> tuple[Prepared, ...]:
+            timer: StageTimer | None = None, with_cavity: bool | None = None) -> tuple[Prepared, ...]:
     """Perceive the pi-systems of a molecule and place their centres (depiction, input or conformer).
 
     ``bond_length`` (A) scales 2D coordinates; default: the parameter set's standard length.
+    ``with_cavity``: also place the other atoms for the solvent model (default: when options.solvent
+    names a solvent other than the gas phase).
     """
+    if with_cavity is None:
+        with_cavity = options.solvent is not None and not solvent_model.load(options.solvent).is_vacuum
     if bond_length is None:
         bond_length = param_registry.load(options.parameters).bond_length_angstrom
     with maybe_stage(timer, "perception"):
-        work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+        work = _without_hydrogens(mol)
         systems = perceive(work)
     for k, sys_ in enumerate(systems):
         if sys_.n_centres > options.max_centres:
@@ -403,7 +463,9 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
             coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
                                         all_pi_bonds=all_bonds)
             twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
-        out.append(Prepared(sys_, coords, twist))
+            cav = (cavity_spheres(work, sys_.atom_indices, coords, source, bond_length, all_bonds)
+                   if with_cavity else None)
+        out.append(Prepared(sys_, coords, twist, cav))
     return tuple(out)
 
 
@@ -413,8 +475,13 @@ def model_for(prep: Prepared, pset: param_registry.ParameterSet, options: Option
     labels = [f"atom {i + 1} ({e})" for i, e in zip(sys_.atom_indices, sys_.elements)]
     use_vb = pset.bond_order_beta_enabled if options.bond_order_beta is None else options.bond_order_beta
     settings = (pset.bond_order_beta or variable_beta.BondOrderBeta()) if use_vb else None
-    return build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, prep.coords, pset,
-                       options.gamma, atom_labels=labels, twist_factors=prep.twist, bond_order_beta=settings)
+    model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, prep.coords, pset,
+                        options.gamma, atom_labels=labels, twist_factors=prep.twist, bond_order_beta=settings)
+    solv = solvent_model.load(options.solvent) if options.solvent is not None else None
+    if solv is None or solv.is_vacuum:
+        return model
+    return replace(model, reaction=solvent_model.reaction_field(solv, prep.coords, sys_.types,
+                                                                sys_.core_charges, sys_.bonds, prep.cavity))
 
 
 def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer | None = None,
@@ -464,7 +531,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
             mol = mol_from_smiles(structure) if isinstance(structure, str) else structure
             if not smiles_in:
                 smiles_in = Chem.MolToSmiles(mol)
-            canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
+            canonical = Chem.MolToSmiles(_without_hydrogens(mol))
         with maybe_stage(timer, "parameters"):
             pset = param_registry.load(opts.parameters)
         chroms = []

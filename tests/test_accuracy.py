@@ -33,16 +33,23 @@ CLASSIC_BOUND_EV = {"all": 0.26, "hydrocarbon": 0.18, "cyanine": 0.27, "any clas
 CLASSIC_FIXED_BOUND_EV = {"all": 0.30, "hydrocarbon": 0.32, "cyanine": 0.27, "any class": 0.52}
 
 
+#: Achieved by the default set with each entry computed in the solvent of its measurement (generalized-Born
+#: reaction field, ppp.model.solvent; opt-in, not the default). Measured 2026-12-02 by
+#: benchmarks/accuracy.py --solvents both: all 0.228, hydrocarbon 0.185, cyanine 0.277, worst class 0.389
+#: (azo) eV. The targets are missed with the solvent model too (docs/accuracy.md).
+CLASSIC_SOLVENT_BOUND_EV = {"all": 0.23, "hydrocarbon": 0.19, "cyanine": 0.28, "any class": 0.39}
+
+
 @pytest.fixture(scope="module")
 def ref():
     return reference.load(REF)
 
 
-def _errors(ref, set_name, **opts):
+def _errors(ref, set_name, reference_solvents=False, **opts):
     options = Options(parameters=set_name, n_triplets=0, **opts)
     pset = params.load(set_name)
     prepared = ev.prepare_set(ref.entries, options, pset.bond_length_angstrom)
-    return ev.evaluate(prepared, pset, options).by_class()
+    return ev.evaluate(prepared, pset, options, reference_solvents=reference_solvents).by_class()
 
 
 def _check(by, bound):
@@ -63,6 +70,16 @@ def classic_errors(ref):
 def test_classic_set_per_class_error(classic_errors):
     # classic is the registry default (bond-order beta on): these are the "default settings" figures
     _check(classic_errors, CLASSIC_BOUND_EV)
+
+
+def test_reference_solvents_per_class_error(ref, classic_errors):
+    # every entry in its own measurement solvent (the CSV's solvent column)
+    solv = _errors(ref, "classic", reference_solvents=True)
+    _check(solv, CLASSIC_SOLVENT_BOUND_EV)
+    # the reaction field acts on pi charges: it moves the push-pull class (charge-transfer bands) to the
+    # red, and leaves the benzenoid hydrocarbons (no pi charges) where they are
+    assert solv["push-pull"].mean_signed_ev < classic_errors["push-pull"].mean_signed_ev - 0.3
+    assert solv["benzenoid"].mean_signed_ev == pytest.approx(classic_errors["benzenoid"].mean_signed_ev, abs=0.01)
 
 
 def test_classic_uncertainty_table_is_its_measured_error(classic_errors):

@@ -106,3 +106,36 @@ def test_cli_rejects_unknown_class(tmp_path, cli):
                    "butadiene,C=CC=C,polyene,hexane,1Bu,allowed,217,3,from memory\n")
     code, _, err = cli("fit", csv, "--classes", "azo", "-o", tmp_path / "x.toml")
     assert code == 1 and "not in" in err
+
+
+def test_fit_with_reference_solvents_recovers_known_parameters():
+    # synthetic "measurements" computed with the solvent reaction field in each row's solvent: a fit in
+    # the same mode recovers the parameters that generated them; a gas-phase fit of the same data does not
+    classic = params.load("classic")
+    opts = Options(n_triplets=0)
+    fitted = [F.parse_parameter("ip:N.amino", classic), F.parse_parameter("beta:C-N.amino", classic)]
+    truth = np.array([23.9, -2.65])
+    true_set = F.apply(classic, fitted, truth)
+    rows = [Entry(n, s, c, "ethanol", "", "allowed", 300.0, 1.0, "") for n, s, c in SYNTH[2:]]
+    prep0 = ev.prepare_set(rows, opts)
+    synthetic = [ev.predict(pe, true_set, opts, reference_solvents=True) for pe in prep0]
+    assert all(e is not None for e in synthetic)
+    ents = [Entry(e.name, e.smiles, e.cls, "ethanol", "", "allowed", float(ev_to_nm(x)), 1.0, "")
+            for e, x in zip(rows, synthetic)]
+    prepared = ev.prepare_set(ents, opts)
+    res = F.fit(prepared, classic, fitted, opts, prior_scale=0.0, max_nfev=40, reference_solvents=True)
+    assert np.allclose(res.x, truth, atol=0.03), res.x
+    gas = F.fit(prepared, classic, fitted, opts, prior_scale=0.0, max_nfev=40)
+    assert not np.allclose(gas.x, truth, atol=0.03)
+
+
+def test_uncertainty_follows_how_the_set_was_measured(tmp_path):
+    import ppp
+    from ppp.calibration.uncertainty import for_result
+    classic = params.load("classic")
+    text = classic.text + '\n[provenance]\nsolvents = "reference"\n'
+    path = tmp_path / "solvset.toml"
+    path.write_text(text.replace('name = "classic"', 'name = "solvset"').replace("default = true", "default = false"))
+    smi = "Nc1ccc(cc1)[N+](=O)[O-]"
+    assert for_result(ppp.compute(smi, parameters=str(path), n_triplets=0, solvent="ethanol")) is not None
+    assert for_result(ppp.compute(smi, parameters=str(path), n_triplets=0)) is None

@@ -140,3 +140,26 @@ def test_run_command_options_for_twist_and_bond_order_beta(cli):
     assert code2 == 0 and out != out2  # the twist changes the states
     code, _, err = cli("run", "C=C", "--conformer", "--input-coordinates")
     assert code == 1 and "exclude each other" in err
+
+
+def test_sdf_record_with_explicit_hydrogens(tmp_path):
+    # a 3D SDF record that carries its hydrogens (as force-field programs write them) must give the same
+    # pi-system as the SMILES: the hydrogen counts move onto the heavy atoms (regression: they read 0,
+    # and benzene was refused as having "no pi-system")
+    from rdkit import Chem
+    from rdkit.Chem import AllChem
+    from ppp.structure.readers import read_molfile
+    mol = Chem.AddHs(Chem.MolFromSmiles("c1ccccc1"))
+    AllChem.EmbedMolecule(mol, randomSeed=7)
+    path = tmp_path / "benzene.sdf"
+    with Chem.SDWriter(str(path)) as w:
+        w.write(mol)
+    rec = read_molfile(path)[0]
+    res = ppp.compute(rec.mol, coordinates="input", n_singlets=3, n_triplets=0)
+    assert res.canonical_smiles == "c1ccccc1"
+    ref = ppp.compute("c1ccccc1", n_singlets=3, n_triplets=0)
+    # ETKDG bond lengths (~1.38-1.40 A) instead of the idealised 1.40 A: the same states within 0.1 eV
+    assert abs(res.s1.energy_ev - ref.s1.energy_ev) < 0.1
+    # and the solvent cavity is built from the record's own geometry
+    solv = ppp.compute(rec.mol, coordinates="input", n_singlets=3, n_triplets=0, solvent="hexane")
+    assert abs(solv.s1.energy_ev - res.s1.energy_ev) < 0.01

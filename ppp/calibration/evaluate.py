@@ -6,14 +6,16 @@ tries (:func:`predict`).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from ..analysis.properties import oscillator_strengths, transition_dipoles
-from ..driver import Options, Prepared, ground_scf, model_for, prepare
+from ..driver import Options, Prepared, ground_scf, model_for, prepare, solvent_corrected
+from ..driver import _seek_stable as seek_stable
 from ..errors import PPPError
 from ..model.params import ParameterSet
+from ..model.solvent import reference_solvent
 from ..solvers import cis as cis_solver
 from ..structure.readers import mol_from_smiles
 from ..units import ev_to_nm
@@ -40,7 +42,7 @@ def prepare_set(entries, options: Options = Options(), bond_length: float = 1.40
     out = []
     for e in entries:
         try:
-            preps = prepare(mol_from_smiles(e.smiles), options, bond_length)
+            preps = prepare(mol_from_smiles(e.smiles), options, bond_length, with_cavity=True)
             out.append(PreparedEntry(e, preps))
         except PPPError as err:
             out.append(PreparedEntry(e, (), str(err.with_molecule(e.name))))
@@ -57,23 +59,40 @@ def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets
     states = []
     for k, prep in enumerate(preps):
         dens0 = warm.get(id(prep)) if warm is not None else None
-        model, scf = ground_scf(model_for(prep, pset, options), options, k, dens0=dens0)
-        if warm is not None:
-            warm[id(prep)] = scf.dens
+        model0 = model_for(prep, pset, options)
+        model, scf = ground_scf(model0, options, k, dens0=dens0)
         res = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, n_singlets, 1)
         if len(res.energies) and res.energies[0] <= 0:
-            continue  # unstable reference: no trustworthy state from this chromophore
+            # the SCF may sit on a saddle point: look for a stable solution as the driver does
+            model, scf, res = seek_stable(model0, model, scf, res, replace(options, n_singlets=n_singlets), k,
+                                          None)
+        res = solvent_corrected(res, scf, model)
+        if len(res.energies) and res.energies[0] <= 0:
+            continue  # unstable reference (or solvent term breakdown): no trustworthy state from it
+        if warm is not None:
+            warm[id(prep)] = scf.dens
         tdm = transition_dipoles(scf.mo_coeff, model.n_occ, res.amplitudes, model.coords)
         f = oscillator_strengths(res.energies, tdm)
         states.extend(_Singlet(float(e), float(x)) for e, x in zip(res.energies, f))
     return states
 
 
+def entry_options(entry: Entry, options: Options) -> Options:
+    """The options with the solvent of the entry's measurement (qualifiers such as "(acidic)" dropped)."""
+    return replace(options, solvent=reference_solvent(entry.solvent))
+
+
 def predict(pe: PreparedEntry, pset: ParameterSet, options: Options = Options(),
-            warm: dict | None = None) -> float | None:
-    """Energy (eV) of the computed state matched to the entry's band, or None (no match / failure)."""
+            warm: dict | None = None, reference_solvents: bool = False) -> float | None:
+    """Energy (eV) of the computed state matched to the entry's band, or None (no match / failure).
+
+    reference_solvents : compute each entry in the solvent of its measurement (ppp.model.solvent)
+        instead of ``options.solvent``
+    """
     if pe.error is not None:
         return None
+    if reference_solvents:
+        options = entry_options(pe.entry, options)
     try:
         state = match_state(singlets(pe.chromophores, pset, options, warm=warm), pe.entry.match)
     except PPPError:
@@ -138,9 +157,12 @@ class Evaluation:
 HYDROCARBON_CLASSES = ("polyene", "benzenoid", "non-alternant")
 
 
-def evaluate(prepared, pset: ParameterSet, options: Options = Options()) -> Evaluation:
-    """Predict every prepared entry under one parameter set and options."""
-    energies = np.array([np.nan if (x := predict(pe, pset, options)) is None else x for pe in prepared])
+def evaluate(prepared, pset: ParameterSet, options: Options = Options(),
+             reference_solvents: bool = False) -> Evaluation:
+    """Predict every prepared entry under one parameter set and options (each in its own measurement
+    solvent with ``reference_solvents``)."""
+    energies = np.array([np.nan if (x := predict(pe, pset, options, reference_solvents=reference_solvents))
+                         is None else x for pe in prepared])
     measured = np.array([pe.entry.energy_ev for pe in prepared])
     return Evaluation(tuple(pe.entry for pe in prepared), energies, measured)
 

@@ -150,11 +150,13 @@ class FitResult:
 
 
 def fit(prepared, pset: ParameterSet, params, options: Options = Options(), max_nfev: int = 30,
-        prior_scale: float = 1.0) -> FitResult:
+        prior_scale: float = 1.0, reference_solvents: bool = False) -> FitResult:
     """Least-squares fit of ``params`` to the prepared entries (see the module docstring).
 
     prior_scale : multiplies the prior widths; 0 switches the prior off (plain least squares)
     max_nfev : objective evaluations allowed (each is one pass over the entries)
+    reference_solvents : compute each entry in the solvent of its measurement (ppp.model.solvent), so
+        that the fitted values belong to the model with the reaction field
     """
     prepared = tuple(prepared)
     params = tuple(params)
@@ -182,7 +184,7 @@ def fit(prepared, pset: ParameterSet, params, options: Options = Options(), max_
         out = np.array(base, copy=True) if base is not None else np.full(len(prepared), np.nan)
         idx = range(len(prepared)) if only is None else np.flatnonzero(only)
         for m in idx:
-            e = predict(prepared[m], trial, options, warm=warm)
+            e = predict(prepared[m], trial, options, warm=warm, reference_solvents=reference_solvents)
             out[m] = np.nan if e is None else e
         if only is None:
             cache[key] = out
@@ -245,7 +247,8 @@ class CrossValidation:
 
 
 def cross_validate(prepared, pset: ParameterSet, params, options: Options = Options(), k: int = 5,
-                   seed: int = 20240601, max_nfev: int = 30, prior_scale: float = 1.0) -> CrossValidation:
+                   seed: int = 20240601, max_nfev: int = 30, prior_scale: float = 1.0,
+                   reference_solvents: bool = False) -> CrossValidation:
     """k-fold cross-validation of :func:`fit`: each fold is predicted by parameters fitted without it."""
     prepared = tuple(prepared)
     if not 2 <= k <= len(prepared):
@@ -255,11 +258,12 @@ def cross_validate(prepared, pset: ParameterSet, params, options: Options = Opti
     fits = []
     for f in range(k):
         train = [pe for pe, g in zip(prepared, fold) if g != f]
-        res = fit(train, pset, params, options, max_nfev=max_nfev, prior_scale=prior_scale)
+        res = fit(train, pset, params, options, max_nfev=max_nfev, prior_scale=prior_scale,
+                  reference_solvents=reference_solvents)
         fits.append(res)
         trial = apply(pset, params, res.x)
         for m in np.flatnonzero(fold == f):
-            e = predict(prepared[m], trial, options)
+            e = predict(prepared[m], trial, options, reference_solvents=reference_solvents)
             energies[m] = np.nan if e is None else e
     return CrossValidation(energies, fold, tuple(fits))
 
@@ -268,11 +272,12 @@ def write_parameter_file(pset: ParameterSet, result: FitResult, name: str, refer
                          reference_sha256: str, description: str, uncertainty: dict[str, float],
                          cv_summary: dict[str, float], train_summary: dict[str, float],
                          bond_order_beta: bool | None = None,
-                         uncertainty_kind: str = "k-fold cross-validated") -> str:
+                         uncertainty_kind: str = "k-fold cross-validated", solvents: str = "gas") -> str:
     """TOML text of a new parameter set: ``pset`` with the fitted values and a [provenance] table.
 
     The base file's layout is kept (parsed and re-emitted); each fitted value's ``source`` says it was
-    fitted, on which data set (path and SHA-256) and when.
+    fitted, on which data set (path and SHA-256) and when. ``solvents`` ("gas" or "reference") is recorded
+    in [provenance]: the errors in [uncertainty] hold for runs of the same kind (ppp.calibration.uncertainty).
     """
     import tomli_w
 
@@ -310,6 +315,7 @@ def write_parameter_file(pset: ParameterSet, result: FitResult, name: str, refer
         "training_mae_ev": {k: round(float(v), 4) for k, v in train_summary.items()},
         "cross_validated_mae_ev": {k: round(float(v), 4) for k, v in cv_summary.items()},
         "optimizer": f"scipy.optimize.least_squares trf; {result.status}",
+        "solvents": solvents,
     }
     header = (f"# ppp parameter set \"{name}\", written by ppp fit from \"{pset.name}\".\n"
               f"# Fitted values carry their provenance in 'source'; see [provenance] for the data set.\n")

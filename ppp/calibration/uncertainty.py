@@ -4,11 +4,15 @@ A parameter set may carry an ``[uncertainty]`` table: the mean absolute error (e
 per chemical class, measured against a reference set, out of sample (k-fold cross-validated for a fitted
 set; the plain error for a set that was never fitted to that reference). A predicted band is given the
 figure of its molecule's class (:func:`ppp.calibration.classes.classify`), or the overall figure ("all")
-when the class has none. The figure in nm follows from d(lambda) = lambda dE / E.
+when the class has none. The figure in nm follows from d(lambda) = lambda dE / E. The figures belong to
+gas-phase runs (the default) unless the set was fitted with ``ppp fit --solvents reference``; a run of the
+other kind gets none (docs/accuracy.md gives the measured errors of the solvent configuration).
 """
 from __future__ import annotations
 
+import tomllib
 from dataclasses import dataclass
+from functools import lru_cache
 
 from ..errors import PPPError
 from ..model import params as param_registry
@@ -41,6 +45,17 @@ def band_uncertainty(energy_ev: float, cls: str, pset: param_registry.ParameterS
     return BandUncertainty(used, sigma, float(ev_to_nm(energy_ev)) * sigma / energy_ev, pset.uncertainty_source)
 
 
+def measured_with(pset: param_registry.ParameterSet) -> str:
+    """How a set's [uncertainty] figures were measured: "reference" (each row in its own solvent, a set
+    written by ``ppp fit --solvents reference``) or "gas"."""
+    return _solvents_of(pset.text)
+
+
+@lru_cache(maxsize=16)
+def _solvents_of(text: str) -> str:
+    return str(tomllib.loads(text).get("provenance", {}).get("solvents", "gas"))
+
+
 def for_result(result, state=None) -> BandUncertainty | None:
     """Uncertainty of a result's band (default: its first allowed band), or None when unavailable."""
     from .classes import classify_smiles
@@ -48,9 +63,13 @@ def for_result(result, state=None) -> BandUncertainty | None:
     state = state if state is not None else result.first_bright
     if state is None:
         return None
+    solvent = getattr(result.options, "solvent", None)
+    in_solvent = solvent is not None and solvent.strip().lower() not in ("gas", "vacuum", "gas phase", "none")
     try:
         pset = param_registry.load(result.options.parameters)
         cls = classify_smiles(result.canonical_smiles)
     except PPPError:
         return None
+    if in_solvent != (measured_with(pset) == "reference"):
+        return None  # the class errors were measured the other way (gas phase / solvent): none applies
     return band_uncertainty(state.energy_ev, cls, pset)

@@ -27,6 +27,9 @@ def add_model_arguments(p) -> None:
                    help="twist angles from an RDKit 3D conformer (ETKDG + MMFF94), centres kept planar")
     g.add_argument("--no-twist", action="store_true",
                    help="with 3D coordinates, do not scale beta by the cosine of the p-orbital twist")
+    g.add_argument("--solvent", metavar="NAME",
+                   help="solvent for the generalized-Born reaction field (e.g. ethanol, water, hexane; "
+                        "see docs/accuracy.md); default: gas phase")
 
 
 def options_from(args) -> Options:
@@ -40,4 +43,5 @@ def options_from(args) -> Options:
     return Options(parameters=args.parameters, gamma=args.gamma, n_singlets=args.singlets,
                    n_triplets=args.triplets, coordinates=coords, max_centres=args.max_centres,
                    cis_solver=getattr(args, "cis_solver", "auto"), threads=getattr(args, "threads", 1),
-                   bond_order_beta=vb, twist=not getattr(args, "no_twist", False))
+                   bond_order_beta=vb, twist=not getattr(args, "no_twist", False),
+                   solvent=getattr(args, "solvent", None))

@@ -32,6 +32,9 @@ def add_arguments(p) -> None:
                    help="bond-order-dependent beta during the fit and in the written set (default: the set's)")
     p.add_argument("--coordinates", choices=("depiction", "conformer"), default="depiction",
                    help="idealised planar centres, or RDKit 3D conformers with twisted-bond beta")
+    p.add_argument("--solvents", choices=("gas", "reference"), default="gas",
+                   help="compute the rows in the gas phase (default) or each in its own solvent column's "
+                        "solvent with the reaction field (then use the set with --solvent)")
     p.add_argument("--output", "-o", metavar="FILE.toml", required=True, help="parameter file to write")
     p.add_argument("--name", help="name of the new set (default: the output file's stem)")
     p.add_argument("--overwrite", action="store_true", help="allow replacing an existing output file")
@@ -81,11 +84,15 @@ def main(args) -> int:
     print(f"reference {ref.path} [{ref.sha256[:12]}]: {len(prepared)} rows; start set {pset.name} "
           f"[{pset.short_hash}]; fitting {', '.join(p.name for p in params)}")
 
-    before = ev.evaluate(prepared, pset, options)
+    solv = getattr(args, "solvents", "gas") == "reference"
+    if solv:
+        print("each row computed in the solvent of its measurement (solvent column; reaction field)")
+    before = ev.evaluate(prepared, pset, options, reference_solvents=solv)
     result = fitting.fit(prepared, pset, params, options, max_nfev=args.max_evaluations,
-                         prior_scale=args.prior_scale)
+                         prior_scale=args.prior_scale, reference_solvents=solv)
     cv = fitting.cross_validate(prepared, pset, params, options, k=args.folds, seed=args.seed,
-                                max_nfev=args.max_evaluations, prior_scale=args.prior_scale)
+                                max_nfev=args.max_evaluations, prior_scale=args.prior_scale,
+                                reference_solvents=solv)
     start = _mae(before.energies, prepared)
     train = _mae(result.energies, prepared)
     cross = _mae(cv.energies, prepared)
@@ -106,7 +113,7 @@ def main(args) -> int:
             f"cross-validated MAE {cross.get('all', float('nan')):.3f} eV")
     text = fitting.write_parameter_file(pset, result, name, str(ref.path), ref.sha256, desc,
                                         uncertainty=cross, cv_summary=cross, train_summary=train,
-                                        bond_order_beta=vb)
+                                        bond_order_beta=vb, solvents="reference" if solv else "gas")
     if out.exists() and not args.overwrite:  # checked again: the fit takes a while
         raise StorageError(f"'{out}' exists; add --overwrite to replace it")
     out.write_text(text, encoding="utf-8")

@@ -94,6 +94,9 @@ class Model:
     parameters_sha256 : str
     bond_order_beta : settings of the bond-order-dependent beta iteration, or None (fixed beta)
     twist_factors : (M,) |cos theta| applied to each bond's beta, or None (planar, all 1)
+    reaction : solvent reaction field (:class:`ppp.model.solvent.ReactionField`), or None (gas phase)
+    e_reaction : float, eV, added to the SCF energy to give the ground-state free energy in solution
+        (set by the solver: G = e_elec + e_core + e_reaction; 0 in the gas phase)
     """
 
     core: np.ndarray
@@ -111,6 +114,8 @@ class Model:
     parameters_sha256: str
     bond_order_beta: BondOrderBeta | None = None
     twist_factors: np.ndarray | None = None
+    reaction: object | None = None
+    e_reaction: float = 0.0
 
     @property
     def n_centres(self) -> int:
