@@ -15,6 +15,7 @@ from ..driver import Options, Prepared, ground_scf, model_for, prepare
 from ..errors import PPPError
 from ..model.params import ParameterSet
 from ..solvers import cis as cis_solver
+from ..solvers import rpa
 from ..structure.readers import mol_from_smiles
 from ..units import ev_to_nm
 from .reference import N_SINGLETS, Entry, ReferenceSet, match_state
@@ -60,7 +61,14 @@ def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets
         model, scf = ground_scf(model_for(prep, pset, options), options, k, dens0=dens0)
         if warm is not None:
             warm[id(prep)] = scf.dens
-        res = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, n_singlets, 1)
+        res = None
+        if options.response == "rpa":
+            try:
+                res = rpa.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, n_singlets)
+            except rpa.RPAInstabilityError:
+                res = None  # as the driver does: CIS decides whether the reference is usable
+        if res is None:
+            res = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, n_singlets, 1)
         if len(res.energies) and res.energies[0] <= 0:
             continue  # unstable reference: no trustworthy state from this chromophore
         tdm = transition_dipoles(scf.mo_coeff, model.n_occ, res.amplitudes, model.coords)

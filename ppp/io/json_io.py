@@ -117,6 +117,7 @@ def result_to_dict(res) -> dict:
             "gamma": res.options.gamma, "n_singlets": res.options.n_singlets,
             "n_triplets": res.options.n_triplets, "coordinates": res.options.coordinates,
             "bond_order_beta": res.options.bond_order_beta, "twist": res.options.twist,
+            "response": res.options.response,
         },
         "chromophores": chroms,
     }
