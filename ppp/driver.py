@@ -18,6 +18,7 @@ from .model import solvent as solvent_model
 from .model import variable_beta
 from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
+from .solvers import rpa
 from .solvers import scf as scf_solver
 from .solvers import stability
 from .solvers.guess import kekule_guess
@@ -33,6 +34,8 @@ from .units import ev_to_nm
 BRIGHT_F = 0.01
 #: Where centre coordinates can come from (see :class:`Options`).
 COORDINATE_SOURCES = ("depiction", "input", "conformer")
+#: Singlet response methods: Tamm-Dancoff CIS, or the random-phase approximation (ppp.solvers.rpa).
+RESPONSES = ("cis", "rpa")
 #: From this many centres on, the SCF starts from the Kekule structure (ppp.solvers.guess) and falls
 #: back to the core-Hamiltonian start; below, the other way round.
 KEKULE_START_FROM = 60
@@ -60,6 +63,9 @@ class Options:
     conformer_seed : random seed of the conformer embedding
     solvent : solvent name (ppp/data/solvents.toml, e.g. "ethanol") for the generalized-Born reaction
         field of ppp.model.solvent; None (default) or "gas": gas phase
+    response : singlet excitation method: "cis" (Tamm-Dancoff, excitations only) or "rpa" (random-phase
+        approximation / time-dependent Hartree-Fock, excitations and de-excitations; ppp.solvers.rpa).
+        Triplets always come from CIS (RPA triplets of PPP references are often unstable).
     """
 
     parameters: str | None = None
@@ -75,6 +81,7 @@ class Options:
     twist: bool = True
     conformer_seed: int = 42
     solvent: str | None = None
+    response: str = "cis"
 
     def __post_init__(self):
         for name in ("n_singlets", "n_triplets"):
@@ -91,6 +98,11 @@ class Options:
                 f"unknown CIS solver '{self.cis_solver}'; valid: {', '.join(cis_solver.SOLVERS)}")
         if self.solvent is not None:
             solvent_model.load(self.solvent)  # InputError naming the valid solvents
+        if self.response not in RESPONSES:
+            raise InputError(f"unknown response method '{self.response}'; valid: {', '.join(RESPONSES)}")
+        if self.response == "rpa" and self.solvent is not None and not solvent_model.load(self.solvent).is_vacuum:
+            raise InputError("the solvent model's state-specific term is built on CIS states: use response "
+                             "'cis' with a solvent")
         if self.gamma is not None and self.gamma not in param_registry.GAMMA_FORMULAS:
             raise InputError(
                 f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
@@ -231,7 +243,9 @@ def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model
     else:
         tdm = np.zeros((len(res.energies), 3))
         f = np.zeros(len(res.energies))
-    confs = dominant_configurations(res.amplitudes, n_occ)
+    # RPA: weights X^2 - Y^2 (Z = X + Y gives the transition dipoles above)
+    confs = dominant_configurations(res.character_amplitudes() if isinstance(res, rpa.RPAResult)
+                                    else res.amplitudes, n_occ)
     out = []
     for k, e in enumerate(res.energies):
         angle, label = polarization(tdm[k]) if multiplicity == 1 else (None, "-")
@@ -299,9 +313,18 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
     return replace(res, energies=e[order], amplitudes=res.amplitudes[order])
 
 
-def _singlets(scf, model, options, timer) -> cis_solver.CISResult:
-    """CIS singlets on the SCF orbitals, without the solvent's state-specific term (the stability tests
-    look at these roots; :func:`solvent_corrected` is applied afterwards)."""
+def _singlets(scf, model, options, timer) -> cis_solver.CISResult | rpa.RPAResult:
+    """Singlets by the chosen response method on the SCF orbitals, without the solvent's state-specific
+    term (the stability tests look at these roots; :func:`solvent_corrected` is applied afterwards).
+    An RPA that finds the reference unstable falls back to CIS, which then decides (through a
+    non-positive root) whether the reference must be followed."""
+    if options.response == "rpa":
+        with maybe_stage(timer, "RPA singlets"):
+            try:
+                return rpa.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets,
+                                  solver=options.cis_solver, dipole_coords=model.coords)
+            except rpa.RPAInstabilityError:
+                pass
     with maybe_stage(timer, "CIS singlets"):
         return cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
                                  solver=options.cis_solver, dipole_coords=model.coords)
@@ -377,6 +400,9 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
         trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3,
                                  solver=options.cis_solver)
     notes = []
+    if options.response == "rpa" and not isinstance(sing, rpa.RPAResult):
+        notes.append("RPA singlets not possible (A - B or A + B not positive definite: instability of the "
+                     "closed-shell reference towards complex orbitals); singlets are CIS values")
     if len(trip.energies) and trip.energies[0] <= 0.0:
         notes.append(f"triplet instability of the closed-shell reference (lowest CIS triplet "
                      f"{trip.energies[0]:.3f} eV <= 0): triplet energies not reported")

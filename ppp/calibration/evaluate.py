@@ -13,10 +13,10 @@ import numpy as np
 from ..analysis.properties import oscillator_strengths, transition_dipoles
 from ..driver import Options, Prepared, ground_scf, model_for, prepare, solvent_corrected
 from ..driver import _seek_stable as seek_stable
+from ..driver import _singlets as singlet_roots
 from ..errors import PPPError
 from ..model.params import ParameterSet
 from ..model.solvent import reference_solvent
-from ..solvers import cis as cis_solver
 from ..structure.readers import mol_from_smiles
 from ..units import ev_to_nm
 from .reference import N_SINGLETS, Entry, ReferenceSet, match_state
@@ -61,11 +61,11 @@ def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets
         dens0 = warm.get(id(prep)) if warm is not None else None
         model0 = model_for(prep, pset, options)
         model, scf = ground_scf(model0, options, k, dens0=dens0)
-        res = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, n_singlets, 1)
+        opts_k = replace(options, n_singlets=n_singlets)
+        res = singlet_roots(scf, model, opts_k, None)  # CIS or RPA as the options say, as the driver does
         if len(res.energies) and res.energies[0] <= 0:
             # the SCF may sit on a saddle point: look for a stable solution as the driver does
-            model, scf, res = seek_stable(model0, model, scf, res, replace(options, n_singlets=n_singlets), k,
-                                          None)
+            model, scf, res = seek_stable(model0, model, scf, res, opts_k, k, None)
         res = solvent_corrected(res, scf, model)
         if len(res.energies) and res.energies[0] <= 0:
             continue  # unstable reference (or solvent term breakdown): no trustworthy state from it

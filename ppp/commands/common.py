@@ -1,7 +1,7 @@
 """Options shared by the subcommands that compute molecules."""
 from __future__ import annotations
 
-from ..driver import Options
+from ..driver import RESPONSES, Options
 from ..model.params import GAMMA_FORMULAS
 from ..solvers.cis import SOLVERS
 
@@ -16,6 +16,9 @@ def add_model_arguments(p) -> None:
                    help="use the coordinates of the MOL/SDF records instead of idealised planar ones")
     g.add_argument("--max-centres", type=int, default=Options.max_centres, metavar="N",
                    help=f"refuse chromophores with more pi-centres than this ({Options.max_centres})")
+    g.add_argument("--response", choices=RESPONSES, default="cis",
+                   help="singlet method: cis (Tamm-Dancoff, default) or rpa (random-phase approximation, "
+                        "time-dependent Hartree-Fock; lower, usually closer bands for dyes; triplets stay CIS)")
     g.add_argument("--cis-solver", choices=SOLVERS, default="auto",
                    help="CIS eigensolver: dense matrix, matrix-free iterative (Davidson), or auto "
                         "(dense for small pi-systems)")
@@ -44,4 +47,4 @@ def options_from(args) -> Options:
                    n_triplets=args.triplets, coordinates=coords, max_centres=args.max_centres,
                    cis_solver=getattr(args, "cis_solver", "auto"), threads=getattr(args, "threads", 1),
                    bond_order_beta=vb, twist=not getattr(args, "no_twist", False),
-                   solvent=getattr(args, "solvent", None))
+                   solvent=getattr(args, "solvent", None), response=getattr(args, "response", "cis"))

@@ -118,6 +118,7 @@ def result_to_dict(res) -> dict:
             "n_triplets": res.options.n_triplets, "coordinates": res.options.coordinates,
             "bond_order_beta": res.options.bond_order_beta, "twist": res.options.twist,
             "solvent": res.options.solvent,
+            "response": res.options.response,
         },
         "chromophores": chroms,
     }

@@ -18,7 +18,8 @@ def format_result(res) -> str:
         lines.append(f"  input      {res.smiles}")
     lines.append(f"  pi-system  {n_c} centres, {n_e} electrons, {len(res.chromophores)} chromophore"
                  f"{'s' if len(res.chromophores) != 1 else ''}; parameters {res.parameters} "
-                 f"[{res.parameters_sha256[:12]}], gamma {res.chromophores[0].model.gamma_formula}"
+                 f"[{res.parameters_sha256[:12]}], gamma {res.chromophores[0].model.gamma_formula}, "
+                 f"singlets {'RPA' if res.options.response == 'rpa' else 'CIS'}, triplets CIS"
                  + (f", solvent {res.options.solvent} (reaction field)" if res.options.solvent else ""))
     for c in res.chromophores:
         tag = f"  [{c.index + 1}]" if len(res.chromophores) > 1 else "  "
