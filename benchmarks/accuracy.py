@@ -49,16 +49,16 @@ def _run_geometry(args):
     prep = ev.prepare_set(ref.entries, Options(coordinates=coords), 1.40)
     t_prep = time.perf_counter() - t0
     out = []
-    for set_name, vb, solv in combos:
+    for set_name, vb, solv, resp in combos:
         pset = params.load(set_name)
         if pset.bond_length_angstrom != 1.40 and coords == "depiction":
             prep_s = ev.prepare_set(ref.entries, Options(coordinates=coords), pset.bond_length_angstrom)
         else:
             prep_s = prep
-        opts = Options(parameters=set_name, bond_order_beta=vb, coordinates=coords, n_triplets=0)
+        opts = Options(parameters=set_name, bond_order_beta=vb, coordinates=coords, n_triplets=0, response=resp)
         t1 = time.perf_counter()
         result = ev.evaluate(prep_s, pset, opts, reference_solvents=solv)
-        out.append((set_name, vb, coords, solv, result.energies, t_prep, time.perf_counter() - t1))
+        out.append((set_name, vb, coords, solv, resp, result.energies, t_prep, time.perf_counter() - t1))
     return out
 
 
@@ -66,9 +66,9 @@ def _provenance(pset) -> dict:
     return tomllib.loads(pset.text).get("provenance", {})
 
 
-def _label(set_name, vb, coords, solv=False):
+def _label(set_name, vb, coords, solv=False, resp="cis"):
     return (f"{set_name} {'bo-beta' if vb else 'fixed-beta'} {'3D+twist' if coords == 'conformer' else 'planar'}"
-            f"{' solv' if solv else ''}")
+            f"{' solv' if solv else ''}{' rpa' if resp == 'rpa' else ''}")
 
 
 def main(argv=None) -> int:
@@ -81,13 +81,18 @@ def main(argv=None) -> int:
     ap.add_argument("--folds", type=int, default=5)
     ap.add_argument("--solvents", choices=("gas", "reference", "both"), default="both",
                     help="gas phase, each entry's own measurement solvent (reaction field), or both")
+    ap.add_argument("--responses", choices=("cis", "rpa", "both"), default="both",
+                    help="singlets from CIS (default engine setting), RPA (--response rpa), or both")
     args = ap.parse_args(argv)
 
     ref = reference.load(args.reference)
     sets = args.sets.split(",") if args.sets else params.available()
     coords = ("depiction",) if args.quick else ("depiction", "conformer")
     solv_flags = {"gas": (False,), "reference": (True,), "both": (False, True)}[args.solvents]
-    combos = [(s, vb, sv) for s in sets for vb in (False, True) for sv in solv_flags]
+    responses = ("cis", "rpa") if args.responses == "both" else (args.responses,)
+    # the solvent's state-specific term is built on CIS states: no RPA rows in a solvent
+    combos = [(s, vb, sv, r) for s in sets for vb in (False, True) for sv in solv_flags for r in responses
+              if not (sv and r == "rpa")]
     jobs = [(args.reference, c, combos) for c in coords]
     print(f"reference {args.reference} [{ref.sha256[:12]}], {len(ref.entries)} bands, "
           f"{len(ref.classes)} classes; default set '{params.default_name()}'")
@@ -104,12 +109,12 @@ def main(argv=None) -> int:
 
     measured = np.array([e.energy_ev for e in ref.entries])
     summaries = []
-    for set_name, vb, c, solv, energies, t_prep, t_eval in results:
+    for set_name, vb, c, solv, resp, energies, t_prep, t_eval in results:
         evaluation = ev.Evaluation(ref.entries, energies, measured)
         pset = params.load(set_name)
         prov = _provenance(pset)
         training = prov.get("reference_sha256") == ref.sha256
-        summaries.append((_label(set_name, vb, c, solv), evaluation.by_class(), training, prov, t_prep, t_eval))
+        summaries.append((_label(set_name, vb, c, solv, resp), evaluation.by_class(), training, prov, t_prep, t_eval))
 
     print("\nMean absolute error, eV (nm), per class; n = rows, x = rows without a matched state")
     head = f"| {'configuration':<38} | " + " | ".join(f"{k:>13}" for k in CLASS_ORDER) + " |"

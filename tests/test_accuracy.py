@@ -40,6 +40,13 @@ CLASSIC_FIXED_BOUND_EV = {"all": 0.30, "hydrocarbon": 0.32, "cyanine": 0.27, "an
 CLASSIC_SOLVENT_BOUND_EV = {"all": 0.23, "hydrocarbon": 0.19, "cyanine": 0.28, "any class": 0.39}
 
 
+#: Achieved by the default set with singlets from the random-phase approximation (Options(response="rpa");
+#: opt-in). Measured 2026-12-02 by benchmarks/accuracy.py: all 0.214, hydrocarbon 0.166, cyanine 0.164,
+#: worst class 0.341 (coumarin) eV: the "no class worse than 0.35 eV" target is met this way, the others
+#: are missed by less than with CIS.
+CLASSIC_RPA_BOUND_EV = {"all": 0.22, "hydrocarbon": 0.17, "cyanine": 0.17, "any class": 0.35}
+
+
 @pytest.fixture(scope="module")
 def ref():
     return reference.load(REF)
@@ -87,6 +94,18 @@ def test_classic_uncertainty_table_is_its_measured_error(classic_errors):
     table = params.load("classic").uncertainty
     for cls, val in table.items():
         assert classic_errors[cls].mae_ev == pytest.approx(val, abs=0.005), cls
+
+
+def test_rpa_singlets_per_class_error_and_uncertainty_table(ref, classic_errors):
+    rpa = _errors(ref, "classic", response="rpa")
+    worst = _check(rpa, CLASSIC_RPA_BOUND_EV)
+    assert worst <= TARGET_EV["any class"]  # this target is met with RPA singlets
+    # RPA lowers the bright bands that CIS puts too high (cyanines, benzenoids, mean signed error)
+    assert rpa["cyanine"].mae_ev < classic_errors["cyanine"].mae_ev - 0.05
+    assert rpa["all"].mean_signed_ev < classic_errors["all"].mean_signed_ev - 0.05
+    # the "±" figures shown beside RPA bands are the errors measured here (to 0.005 eV)
+    for cls, val in params.load("classic").uncertainty_rpa.items():
+        assert rpa[cls].mae_ev == pytest.approx(val, abs=0.005), cls
 
 
 def test_bond_order_beta_lowers_the_error(ref, classic_errors):

@@ -32,10 +32,11 @@ class BandUncertainty:
         return f"\u00b1 {self.sigma_nm:.0f} nm ({self.cls}-class error {self.sigma_ev:.2f} eV)"
 
 
-def band_uncertainty(energy_ev: float, cls: str, pset: param_registry.ParameterSet) -> BandUncertainty | None:
+def band_uncertainty(energy_ev: float, cls: str, pset: param_registry.ParameterSet,
+                     response: str = "cis") -> BandUncertainty | None:
     """Uncertainty of a band at ``energy_ev`` for a molecule of class ``cls`` under ``pset`` (None if the
-    set carries no figures)."""
-    table = pset.uncertainty
+    set carries no figures for singlets of that ``response`` method: "cis" or "rpa")."""
+    table = pset.uncertainty_rpa if response == "rpa" else pset.uncertainty
     if not table or not energy_ev > 0:
         return None
     used = cls if cls in table else "all"
@@ -72,4 +73,4 @@ def for_result(result, state=None) -> BandUncertainty | None:
         return None
     if in_solvent != (measured_with(pset) == "reference"):
         return None  # the class errors were measured the other way (gas phase / solvent): none applies
-    return band_uncertainty(state.energy_ev, cls, pset)
+    return band_uncertainty(state.energy_ev, cls, pset, getattr(result.options, "response", "cis"))

@@ -57,6 +57,8 @@ class ParameterSet:
     uncertainty: Mapping[str, float] = field(default_factory=lambda: MappingProxyType({}))
     #: where the uncertainty figures come from (free text)
     uncertainty_source: str = ""
+    #: the same figures measured with RPA singlets ([uncertainty.rpa] table; empty when not measured)
+    uncertainty_rpa: Mapping[str, float] = field(default_factory=lambda: MappingProxyType({}))
 
     @property
     def short_hash(self) -> str:
@@ -204,18 +206,27 @@ def _load_path(path: str) -> ParameterSet:
             if not all(t in types for t in pair):
                 raise ParameterError(f"{where}: [bond_order_beta] pair '{'-'.join(pair)}' names an undefined type")
     unc: dict[str, float] = {}
+    unc_rpa: dict[str, float] = {}
     unc_source = ""
+
+    def class_errors(table: dict, label: str) -> dict[str, float]:
+        classes = table.get("mae_ev", {})
+        if not isinstance(classes, dict):
+            raise ParameterError(f"{where}: [{label}] mae_ev must be a table of class = eV")
+        out = {}
+        for cls in classes:
+            val = need(classes, cls, float, f"[{label}.mae_ev]")
+            if val < 0:
+                raise ParameterError(f"{where}: [{label}.mae_ev] {cls} must not be negative")
+            out[cls] = val
+        return out
+
     if "uncertainty" in data:
         table = need(data, "uncertainty", dict, "the top level")
         unc_source = str(table.get("source", ""))
-        classes = table.get("mae_ev", {})
-        if not isinstance(classes, dict):
-            raise ParameterError(f"{where}: [uncertainty] mae_ev must be a table of class = eV")
-        for cls in classes:
-            val = need(classes, cls, float, "[uncertainty.mae_ev]")
-            if val < 0:
-                raise ParameterError(f"{where}: [uncertainty.mae_ev] {cls} must not be negative")
-            unc[cls] = val
+        unc = class_errors(table, "uncertainty")
+        if "rpa" in table:
+            unc_rpa = class_errors(need(table, "rpa", dict, "[uncertainty]"), "uncertainty.rpa")
 
     pset = ParameterSet(
         name=name, version=version, description=description,
@@ -225,5 +236,6 @@ def _load_path(path: str) -> ParameterSet:
         is_default=bool(data.get("default", False)),
         bond_order_beta=bob, bond_order_beta_enabled=bob_on,
         uncertainty=MappingProxyType(unc), uncertainty_source=unc_source,
+        uncertainty_rpa=MappingProxyType(unc_rpa),
     )
     return pset
