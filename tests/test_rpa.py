@@ -181,3 +181,10 @@ def test_unstable_reference_raises_rpa_instability():
         return
     assert all(s.energy_ev > 1e-3 for s in res.singlets)
     assert any("singlets are CIS values" in w for w in res.warnings) or res.singlets[0].energy_ev > 0.1
+
+
+def test_rpa_with_a_solvent_is_refused_in_one_line():
+    # the solvent's state-specific term (ppp.model.solvent) is built on CIS states
+    with pytest.raises(InputError, match="use response 'cis' with a solvent"):
+        Options(response="rpa", solvent="ethanol")
+    assert Options(response="rpa", solvent="gas").response == "rpa"  # gas phase is no solvent
