@@ -108,6 +108,10 @@ def _worker_init(parent: int):
 
     import threading
     threading.Thread(target=watch, name="ppp-parent-watch", daemon=True).start()
+    # one tiny molecule first: one-time costs (lazy imports, loading cached numba kernels) are paid
+    # here, not by the first input molecule against its time limit
+    from ..driver import compute
+    compute("C=C")
 
 
 def _lock(path: Path):
