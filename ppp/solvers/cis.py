@@ -71,9 +71,10 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
 #: Solver names accepted by :func:`kernel`.
 SOLVERS = ("auto", "dense", "iterative")
 #: "auto" uses the dense matrix up to this many configurations n_occ * n_vir, Davidson above. Measured
-#: by benchmarks/bench_crossover.py (11 roots, one thread): dense 2x slower at 900 configurations
-#: (60 centres), 2-3x faster at 360-400 (40 centres); the switch sits at about 50 centres.
-DENSE_MAX_CONFIGURATIONS = 625
+#: by benchmarks/bench_crossover.py on generated dyes (10 singlets + 10 triplets, one BLAS thread, 2-core
+#: machine shared with other jobs): dense/iterative time 0.5 at 350-450 configurations, 0.7 at 450-550,
+#: 1.0 at 550-650, 1.3-1.6 at 650-850, 1.8 at 850-950.
+DENSE_MAX_CONFIGURATIONS = 600
 #: "dense" refuses matrices above this many bytes (the diagonaliser needs about three times as much).
 DENSE_MAX_BYTES = 2 * 2**30
 #: Roots closer than this (eV) form one degenerate level for :func:`align_degenerate`.
