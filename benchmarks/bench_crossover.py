@@ -1,6 +1,6 @@
 """Dense against matrix-free (Davidson) CIS by size: where ``cis_solver="auto"`` should switch.
 
-    python -m benchmarks.bench_crossover [--n 200] [--seed 1] [--ribbons 80,100,140]
+    python -m benchmarks.bench_crossover [--n 200] [--seed 1] [--ribbons 80,100]
 
 Generated dye-like molecules (``ppp.batch.synthetic.dye_library``, 10-60 centres) and a few larger
 graphene ribbons. For each molecule, after its SCF: 10 singlets (with the degeneracy check of the driver,
@@ -51,7 +51,7 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--n", type=int, default=200, help="generated molecules")
     ap.add_argument("--seed", type=int, default=1)
-    ap.add_argument("--ribbons", default="80,100,140", help="approximate ribbon sizes (centres), '' for none")
+    ap.add_argument("--ribbons", default="80,100", help="approximate ribbon sizes (centres), '' for none")
     args = ap.parse_args(argv)
     from benchmarks.shapes import ribbon_with_about
 

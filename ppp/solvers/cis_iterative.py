@@ -237,7 +237,11 @@ def _lowest_eigh(a: np.ndarray, n: int):
 
 
 def _safe(den: np.ndarray, eps: float = 1e-8) -> np.ndarray:
-    return np.where(np.abs(den) < eps, np.copysign(eps, den), den)
+    """Denominators kept at least ``eps`` away from zero (in place)."""
+    tiny = np.abs(den) < eps
+    if tiny.any():
+        den[tiny] = np.copysign(eps, den[tiny])
+    return den
 
 
 def window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity=1, window=WINDOW, eig=None):
@@ -419,21 +423,21 @@ def _orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e
 
     Returns (rows (r, dim), indices of ``new`` the rows stem from, or None after a Loewdin mixing).
     """
-    idx = np.arange(new.shape[0])
-    norms = np.sqrt(np.einsum("ij,ij->i", new, new))
-    ok = norms > 0
-    new, idx = new[ok] / norms[ok, None], idx[ok]
+    n0 = np.einsum("ij,ij->i", new, new)
+    idx = np.flatnonzero(n0 > 0)
+    if idx.size < new.shape[0]:
+        new, n0 = new[idx], n0[idx]
     for rnd in range(2):
         if basis.shape[0] and new.shape[0]:
             new = new - (new @ basis.T) @ basis
             nn = np.einsum("ij,ij->i", new, new)
-            if rnd == 0 and np.min(nn) < 0.5:
-                new = new - (new @ basis.T) @ basis
+            if rnd == 0 and np.min(nn / n0) < 0.5:
+                new -= (new @ basis.T) @ basis
                 nn = np.einsum("ij,ij->i", new, new)
             if rnd == 0:
-                ok = nn > drop
-                new = new[ok]
-                idx = idx[ok] if idx is not None else None
+                ok = nn > drop * n0
+                if not ok.all():
+                    new, idx = new[ok], idx[ok]
         if new.shape[0] == 0:
             return new, idx
         s = new @ new.T
