@@ -287,3 +287,11 @@ def test_orthonormal_complement_drops_dependent_rows():
     assert out.shape[0] == 4
     np.testing.assert_allclose(out @ out.T, np.eye(4), atol=1e-12)
     assert np.max(np.abs(out @ basis.T)) < 1e-12
+
+
+def test_iterative_kernel_raises_when_not_converged():
+    """One Rayleigh-Ritz step cannot converge 10 roots of a 25-centre dye: a ConvergenceError, never a
+    silently wrong result."""
+    model, res = _model(STILBAZOLIUM)
+    with pytest.raises(ConvergenceError, match="did not converge"):
+        cis_iterative.kernel(res.mo_energy, res.mo_coeff, model.gamma, model.n_occ, 10, 1, max_iter=1)
