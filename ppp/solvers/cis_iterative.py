@@ -25,12 +25,11 @@ so both multiplicities cost the same four matrix products, O(N^3) work and O(N^2
 A block of vectors goes through each product as ONE matrix multiplication (the vectors side by side),
 in chunks that bound the N^2-sized intermediates.
 
-The eigensolver is Davidson's (1975) method in its block form (Liu 1978): all unconverged roots are
-expanded at once, converged roots are locked (no longer expanded), the subspace collapses to the
-current Ritz vectors when full. Preconditioner: the CIS diagonal (exact for small systems) or,
-for large systems, a two-level one with the exact CIS matrix on a frontier window and Olsen's
-correction (Olsen, Jorgensen & Simons 1990). Start vectors: the lowest eigenvectors of the CIS matrix
-restricted to a window of frontier orbitals (whole degenerate levels included).
+The eigensolver is Davidson's (1975) method in its block form (Liu 1978); see :func:`davidson`.
+Preconditioner: the exact CIS diagonal (its singlet term 2 (ia|ia) up to ``EXACT_DIAGONAL_MAX``
+configurations); above ``LARGE_CENTRES`` centres a two-level one with the exact CIS matrix on a window of
+frontier orbitals and Olsen's correction (Olsen, Jorgensen & Simons 1990), whose lowest eigenvectors are
+then also the start vectors.
 """
 from __future__ import annotations
 
@@ -63,8 +62,6 @@ LARGE_CENTRES = 150
 NOISE = 1e-3
 #: Corrections per unconverged root and Davidson iteration (see :func:`davidson`).
 DEPTH = 2
-#: Largest number of corrections per root and iteration when only a few roots are left.
-BLOCK_DEPTH_MAX = 4
 
 
 @dataclass(frozen=True)
@@ -271,7 +268,7 @@ def window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity=
 def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = None, tol: float = CONV_TOL,
              max_iter: int = 200, max_space: int | None = None, rng: np.random.Generator | None = None,
              noise: float = NOISE, guess: np.ndarray | None = None, precondition=None,
-             keep: int | None = None, depth: int = DEPTH, adaptive: bool = True):
+             keep: int | None = None, depth: int = DEPTH):
     """Lowest eigenpairs of a symmetric operator by the block Davidson method (Davidson 1975; Liu 1978).
 
     Each iteration: Rayleigh-Ritz in the subspace (a small symmetric eigenproblem), residuals
@@ -367,10 +364,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
             new = precondition(resid[~conv], xr[0][~conv], shifts)
         else:
             new = resid[~conv] / _safe(shifts[:, None] - diag[None, :])
-        # few unconverged roots left: more corrections each, so that every small eigenproblem is shared
-        # by about n_roots new vectors
-        steps = max(depth, min(BLOCK_DEPTH_MAX, k // todo.size)) if adaptive else depth
-        if m + min(steps * todo.size, max_space - keep) > max_space:
+        if m + min(depth * todo.size, max_space - keep) > max_space:
             # restart from the lowest Ritz vectors and the previous iteration's ones ("GD+k")
             cols = s[:, :min(m, keep)]
             if prev is not None:
@@ -384,7 +378,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
             s_k = np.eye(m)[:, :kk]
         prev = s_k
         m0 = m
-        for step in range(steps):
+        for step in range(depth):
             new, kept = _orthonormal_complement(vw[0, :m], new)
             n_new = min(new.shape[0], max_space - m)
             if n_new == 0:
@@ -398,7 +392,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
             grown[:, m:] = cross
             grown[m:, :m] = cross[:m].T
             sub = grown
-            if step + 1 < steps:
+            if step + 1 < depth:
                 # the correction the next iteration would add: (A - theta) t / (theta - D)
                 shifts = shifts[kept[:n_new]] if kept is not None else np.full(n_new, shifts.min())
                 r2 = vw[1, m:m + n_new] - shifts[:, None] * vw[0, m:m + n_new]
