@@ -215,3 +215,83 @@ def test_window_matrix_is_the_dense_matrix_restricted_to_the_window():
         full = cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, mult)
         a, flat = cis_iterative.window_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, mult, window=4)
         np.testing.assert_allclose(a, full[np.ix_(flat, flat)], rtol=0, atol=1e-12)
+
+
+def _two_species_matrix():
+    """Block-diagonal symmetric matrix (two 'symmetry species' that never mix). Species A: diagonal
+    1..10 weakly coupled; species B: diagonal entries >= 6 with strong couplings, so that its lowest
+    eigenvalue (about 0.3) lies below everything in A although none of its diagonal entries is among the
+    lowest ones. Constructed test case (law of linear algebra: eigenvalues of a block-diagonal matrix
+    are those of its blocks)."""
+    rng = np.random.default_rng(11)
+    na, nb = 40, 40
+    a = np.diag(np.linspace(1.0, 10.0, na)) + 0.01 * rng.standard_normal((na, na))
+    a = 0.5 * (a + a.T)
+    q, _ = np.linalg.qr(rng.standard_normal((nb, nb)))
+    lam_b = np.concatenate([[0.3], np.linspace(12.0, 30.0, nb - 1)])
+    b = (q * lam_b) @ q.T
+    b[np.diag_indices(nb)] = np.maximum(np.diag(b), 6.0)  # keep B's diagonal above A's lowest entries
+    full = np.zeros((na + nb, na + nb))
+    full[:na, :na] = a
+    full[na:, na:] = b
+    return full
+
+
+def test_davidson_finds_a_root_of_a_species_missing_from_the_start_vectors():
+    """Unit start vectors on the lowest diagonal entries all belong to species A; without the random
+    admixture the subspace never leaves A and the lowest root (in B) is missed. With it (the default in
+    cis_iterative.kernel) every root comes out as in the dense eigensolver."""
+    full = _two_species_matrix()
+    exact = np.linalg.eigvalsh(full)[:4]
+    diag = np.diag(full).copy()
+    assert np.argsort(diag)[:8].max() < 40  # the start vectors all lie in species A
+    blind, _, _, _ = cis_iterative.davidson(lambda r: r @ full, diag, 4, n_guess=8, tol=1e-9, noise=0.0)
+    assert abs(blind[0] - exact[0]) > 0.5  # the pitfall is real: the B root is missing
+    w, x, _, _ = cis_iterative.davidson(lambda r: r @ full, diag, 4, n_guess=8, tol=1e-9,
+                                        rng=np.random.default_rng(2))
+    np.testing.assert_allclose(w, exact, rtol=0, atol=1e-10)
+    np.testing.assert_allclose(x @ x.T, np.eye(4), atol=1e-10)
+
+
+@pytest.mark.parametrize("depth", [1, 2, 3])
+def test_davidson_depths_and_restarts_agree_with_dense(depth):
+    """Corrections per iteration (depth) and a small subspace that forces many restarts: same roots."""
+    model, res = _model(STILBAZOLIUM)
+    o = model.n_occ
+    dense = cis.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 8, 1, solver="dense")
+    op = cis_iterative.operator(res.mo_energy, res.mo_coeff, model.gamma, o)
+    diag = (op.de - cis_iterative.exchange_diagonal(op) + 2.0 * cis_iterative.coulomb_diagonal(op)).ravel()
+    w, x, _, _ = cis_iterative.davidson(lambda r: cis_iterative.apply(op, r, 1), diag, 8, depth=depth, keep=10,
+                                        max_space=26, tol=1e-9, rng=np.random.default_rng(1))
+    np.testing.assert_allclose(w, dense.energies, rtol=0, atol=1e-10)
+    np.testing.assert_allclose(x @ x.T, np.eye(8), atol=1e-10)
+
+
+def test_exact_cis_diagonal_equals_the_dense_diagonal():
+    model, res = _model(MEROCYANINE)
+    o = model.n_occ
+    op = cis_iterative.operator(res.mo_energy, res.mo_coeff, model.gamma, o)
+    for mult, diag in ((1, op.de - cis_iterative.exchange_diagonal(op) + 2.0 * cis_iterative.coulomb_diagonal(op)),
+                       (3, op.de - cis_iterative.exchange_diagonal(op))):
+        full = cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, mult)
+        np.testing.assert_allclose(diag.ravel(), np.diag(full), rtol=0, atol=1e-12)
+
+
+def test_orthonormal_complement_drops_dependent_rows():
+    rng = np.random.default_rng(6)
+    basis, _ = np.linalg.qr(rng.standard_normal((50, 5)))
+    basis = basis.T
+    new = rng.standard_normal((4, 50))
+    rows = np.vstack([new, new[0] + new[1], basis[2] + 1e-12 * new[3]])  # one dependent, one in the basis
+    out, _ = cis_iterative._orthonormal_complement(basis, rows)
+    assert out.shape[0] == 4
+    np.testing.assert_allclose(out @ out.T, np.eye(4), atol=1e-12)
+    assert np.max(np.abs(out @ basis.T)) < 1e-12
+
+
+def test_iterative_kernel_raises_when_not_converged():
+    """One Rayleigh-Ritz step cannot converge 10 roots of a 25-centre dye: a ConvergenceError, never a
+    silently wrong result."""
+    model, res = _model(STILBAZOLIUM)
+    with pytest.raises(ConvergenceError, match="did not converge"):
+        cis_iterative.kernel(res.mo_energy, res.mo_coeff, model.gamma, model.n_occ, 10, 1, max_iter=1)

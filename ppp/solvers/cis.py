@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
-from ..errors import InputError, TooLargeError
+from ..errors import ConvergenceError, InputError, TooLargeError
 
 
 @dataclass(frozen=True)
@@ -51,12 +51,18 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
         raise ValueError("multiplicity must be 1 or 3")
     co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
     o, v = co.shape[1], cv.shape[1]
-    # exchange-type (ij|ab), arranged as [ia, jb]
-    j_int = (pair_products(co, co).T @ gamma @ pair_products(cv, cv)).reshape(o, o, v, v)
-    a = -j_int.transpose(0, 2, 1, 3).reshape(o * v, o * v)
+    # exchange-type (ij|ab) as [ij, ab]; the Coulomb-type part is computed first straight into the
+    # result, then the exchange is subtracted through a swapped view ([ij, ab] -> [ia, jb]). Two large
+    # arrays only: fresh large temporaries cost page faults that took longer than the products here.
+    j_int = (pair_products(co, co).T @ gamma) @ pair_products(cv, cv)
     if multiplicity == 1:
         b = pair_products(co, cv)  # (N, o*v) transition densities
-        a += 2.0 * (b.T @ gamma @ b)
+        a = (2.0 * (b.T @ gamma)) @ b
+        a.reshape(o, v, o, v)[...] -= np.swapaxes(j_int.reshape(o, o, v, v), 1, 2)
+    else:
+        a = np.swapaxes(j_int.reshape(o, o, v, v), 1, 2).copy().reshape(o * v, o * v)
+        np.negative(a, out=a)
+    del j_int
     diag = (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
     a[np.diag_indices_from(a)] += diag
     return a
@@ -65,9 +71,10 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
 #: Solver names accepted by :func:`kernel`.
 SOLVERS = ("auto", "dense", "iterative")
 #: "auto" uses the dense matrix up to this many configurations n_occ * n_vir, Davidson above. Measured
-#: by benchmarks/bench_crossover.py (11 roots, one thread): dense 2x slower at 900 configurations
-#: (60 centres), 2-3x faster at 360-400 (40 centres); the switch sits at about 50 centres.
-DENSE_MAX_CONFIGURATIONS = 625
+#: by benchmarks/bench_crossover.py on generated dyes (10 singlets + 10 triplets, one BLAS thread, 2-core
+#: machine shared with other jobs): dense/iterative time 0.5 at 350-450 configurations, 0.7 at 450-550,
+#: 1.0 at 550-650, 1.3-1.6 at 650-850, 1.8 at 850-950.
+DENSE_MAX_CONFIGURATIONS = 600
 #: "dense" refuses matrices above this many bytes (the diagonaliser needs about three times as much).
 DENSE_MAX_BYTES = 2 * 2**30
 #: Roots closer than this (eV) form one degenerate level for :func:`align_degenerate`.
@@ -118,10 +125,16 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
                 f"dense CIS matrix of {o * v} configurations needs {need / 2**30:.1f} GB; use the "
                 f"iterative solver")
         a = cis_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity)
+        # a is symmetric and C-ordered, so a.T is the same matrix in the Fortran order LAPACK works in:
+        # no copy of the largest array; the finiteness check follows on the (few) results instead
         if k_solve < o * v:
-            w, x = scipy.linalg.eigh(a, subset_by_index=[0, k_solve - 1], driver="evr")
+            w, x = scipy.linalg.eigh(a.T, subset_by_index=[0, k_solve - 1], driver="evr", overwrite_a=True,
+                                     check_finite=False)
         else:
-            w, x = scipy.linalg.eigh(a)
+            w, x = scipy.linalg.eigh(a.T, overwrite_a=True, check_finite=False)
+        del a
+        if not (np.all(np.isfinite(w)) and np.all(np.isfinite(x))):
+            raise ConvergenceError("dense CIS eigensolver returned non-finite values")
         x = x.T.reshape(-1, o, v)
     if dipole_coords is not None:
         x = align_degenerate(w, x, mo_coeff, n_occ, dipole_coords)

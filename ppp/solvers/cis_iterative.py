@@ -1,5 +1,5 @@
-"""Matrix-free CIS for large pi-systems: sigma-vectors from MO coefficients and gamma, and a Davidson
-eigensolver for the lowest roots.
+"""Matrix-free CIS: sigma-vectors from MO coefficients and gamma, and a block Davidson eigensolver for
+the lowest roots.
 
 The CIS matrix (module :mod:`ppp.solvers.cis`) has (n_occ n_vir)^2 entries, 4 GB at N = 300 centres.
 Under zero differential overlap its product with a trial vector X (n_occ x n_vir) never needs it:
@@ -9,44 +9,110 @@ Coulomb-type term (the "2 (ia|jb)" of singlets):
 
     J(X)_ia = sum_jb (ia|jb) X_jb = sum_mu C_mu,i C_mu,a g_mu ,
         g = gamma d ,  d_nu = sum_jb C_nu,j X_jb C_nu,b = diag(C_o X C_v^T)_nu
-    =>  J(X) = C_o^T diag(g) C_v                                   O(N n_occ n_vir)
+    =>  J(X) = C_o^T diag(g) C_v
 
 Exchange-type term (the "(ij|ab)"):
 
-    K(X)_ia = sum_jb (ij|ab) X_jb = sum_{mu,nu} C_mu,i C_mu,j gamma_mu,nu C_nu,a C_nu,b X_jb
-            = sum_{mu,nu} C_mu,i [gamma o T]_mu,nu C_nu,a ,  T = C_o X C_v^T  (N x N)
-    =>  K(X) = C_o^T (gamma o T) C_v                               O(N^2 (n_occ + n_vir)) = O(N^3)
+    K(X)_ia = sum_jb (ij|ab) X_jb = sum_{mu,nu} C_mu,i [gamma o T]_mu,nu C_nu,a ,  T = C_o X C_v^T  (N x N)
+    =>  K(X) = C_o^T (gamma o T) C_v
 
 where o is the elementwise (Hadamard) product. Then, spin-adapted (Foresman et al. 1992),
 
-    singlet:  sigma = De o X + 2 J(X) - K(X)
-    triplet:  sigma = De o X        - K(X) ,      De_ia = e_a - e_i .
+    singlet:  sigma = De o X - C_o^T (gamma o T - 2 diag(g)) C_v
+    triplet:  sigma = De o X - C_o^T (gamma o T) C_v ,      De_ia = e_a - e_i ,
 
-Work per vector O(N^3) with four matrix products, memory O(N^2) per vector; several vectors go
-through the same products at once (stacked GEMMs), in chunks that bound the memory.
+so both multiplicities cost the same four matrix products, O(N^3) work and O(N^2) memory per vector.
+A block of vectors goes through each product as ONE matrix multiplication (the vectors side by side),
+in chunks that bound the N^2-sized intermediates.
 
-The eigensolver is Davidson's (1975) method, restarted ("collapsed") to the current Ritz vectors when
-the subspace is full. Its preconditioner is two-level: the exact CIS matrix on a window of frontier
-orbitals (where the low states live), and elsewhere the diagonal De_ia - (ii|aa) + 2 (ia|ia) without
-the last term, whose exact evaluation would cost O(N^2 n_occ n_vir); the start vectors are the lowest
-eigenvectors of the window matrix.
+The eigensolver is Davidson's (1975) method in its block form (Liu 1978); see :func:`davidson`.
+Preconditioner: the exact CIS diagonal (its singlet term 2 (ia|ia) up to ``EXACT_DIAGONAL_MAX``
+configurations); above ``LARGE_CENTRES`` centres a two-level one with the exact CIS matrix on a window of
+frontier orbitals and Olsen's correction (Olsen, Jorgensen & Simons 1990), whose lowest eigenvectors are
+then also the start vectors.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
-import scipy.linalg
+from scipy.linalg.lapack import dsyevr as _syevr
 
 from ..errors import ConvergenceError
 
 #: Residual 2-norm (eV) below which a root counts as converged. The energy error is of the order of
 #: the residual squared over the gap to the next root; amplitudes are accurate to residual / gap.
-CONV_TOL = 1e-8
-#: Frontier orbitals per side of the window used for start vectors and preconditioning (measured on a
-#: 398-centre ribbon, 11 singlets: 234 sigma-vectors with the diagonal alone, 180 with 24, 165 with 32,
-#: 152 with 48, whose set-up then costs more than it saves).
+CONV_TOL = 1e-7
+#: Frontier orbitals per side of the window used for start vectors and preconditioning at 1,000 centres
+#: (measured on a 398-centre ribbon, 11 singlets: 234 sigma-vectors with the diagonal alone, 180 with
+#: 24, 165 with 32, 152 with 48, whose set-up then costs more than it saves).
 WINDOW = 32
 #: Trial vectors pushed through one stacked sigma product (bounds the N^2-sized intermediates).
-CHUNK_BYTES = 64 * 2**20
+CHUNK_BYTES = 320 * 2**10
+#: Largest n_occ * n_vir for which the exact CIS diagonal (with the O(N^2 n_occ n_vir) term 2 (ia|ia))
+#: is computed for the singlet preconditioner; above, the triplet diagonal stands in for it. Measured on
+#: the 50-60-centre dyes of dye_library(200, seed=1): 13 % fewer sigma-vectors with the exact diagonal;
+#: its cost, about 8 sigma-vectors at this bound, grows as N^4.
+EXACT_DIAGONAL_MAX = 4000
+#: Above this many centres a sigma-vector costs more than the rest of a Davidson iteration: the kernel
+#: then uses the frontier-window preconditioner, one correction per root and iteration, and a larger
+#: subspace (measured on ribbons of 300-1,000 centres: 20-40 % faster than the settings for dyes).
+LARGE_CENTRES = 150
+#: Start-vector admixture (see :func:`davidson`).
+NOISE = 1e-3
+#: Corrections per unconverged root and Davidson iteration (see :func:`davidson`).
+DEPTH = 2
+
+
+@dataclass(frozen=True)
+class Operator:
+    """MO-basis pieces of the CIS operator, shared by all trial vectors and both multiplicities.
+
+    co : (N, n_occ), cv : (N, n_vir) MO coefficients (C-contiguous copies)
+    gamma : (N, N) eV;  de : (n_occ, n_vir) orbital-energy differences e_a - e_i, eV
+    """
+
+    co: np.ndarray
+    cv: np.ndarray
+    gamma: np.ndarray
+    de: np.ndarray
+
+    @property
+    def shape(self):
+        return self.co.shape[1], self.cv.shape[1]
+
+
+def operator(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int) -> Operator:
+    mo_energy = np.asarray(mo_energy, dtype=float)
+    mo_coeff = np.asarray(mo_coeff, dtype=float)
+    return Operator(co=np.ascontiguousarray(mo_coeff[:, :n_occ]), cv=np.ascontiguousarray(mo_coeff[:, n_occ:]),
+                    gamma=np.ascontiguousarray(gamma, dtype=float),
+                    de=mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None])
+
+
+def apply(op: Operator, x: np.ndarray, multiplicity: int = 1) -> np.ndarray:
+    """CIS matrix times the rows of ``x`` (m, n_occ * n_vir); returns (m, n_occ * n_vir), eV."""
+    co, cv, gamma = op.co, op.cv, op.gamma
+    n, o = co.shape
+    v = cv.shape[1]
+    m = x.shape[0]
+    out = (op.de.reshape(1, -1) * x)
+    step = max(4, int(CHUNK_BYTES // (8 * n * n)))
+    idx = np.arange(n)
+    for s in range(0, m, step):
+        ms = min(step, m - s)
+        y = x[s:s + ms].reshape(ms * o, v) @ cv.T  # X_k C_v^T, rows (k, i)
+        y = y.reshape(ms, o, n).transpose(1, 0, 2).reshape(o, ms * n)
+        t = (co @ y).reshape(n, ms, n)  # T_k = C_o X_k C_v^T as t[mu, k, nu]
+        if multiplicity == 1:
+            g = gamma @ t[idx, :, idx]  # g_k = gamma diag(T_k), (N, ms)
+            t *= gamma[:, None, :]
+            t[idx, :, idx] -= 2.0 * g  # gamma o T - 2 diag(g)
+        else:
+            t *= gamma[:, None, :]
+        z = (co.T @ t.reshape(n, ms * n)).reshape(o * ms, n)  # C_o^T (.) as rows (i, k)
+        out[s:s + ms] -= (z @ cv).reshape(o, ms, v).transpose(1, 0, 2).reshape(ms, o * v)
+    return out
 
 
 def sigma(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int, x: np.ndarray,
@@ -67,44 +133,33 @@ def sigma(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ:
         raise ValueError("multiplicity must be 1 or 3")
     x = np.asarray(x, dtype=float)
     m, o, v = x.shape
-    n = mo_coeff.shape[0]
-    co, cv = mo_coeff[:, :o], mo_coeff[:, o:]
-    de = mo_energy[o:][None, :] - mo_energy[:o][:, None]
-    out = de[None] * x
-    step = max(1, int(CHUNK_BYTES // (8 * n * n)))
-    for s in range(0, m, step):
-        xs = x[s:s + step]
-        ms = xs.shape[0]
-        y = (xs.reshape(ms * o, v) @ cv.T).reshape(ms, o, n)  # X C_v^T
-        t = np.matmul(co, y)  # T = C_o X C_v^T, (ms, N, N)
-        if multiplicity == 1:
-            d = np.diagonal(t, axis1=1, axis2=2)  # diag(T), (ms, N)
-            g = d @ gamma  # gamma symmetric: g_k = gamma d_k
-            # 2 J(X) = 2 C_o^T diag(g) C_v, as one stacked product
-            out[s:s + ms] += 2.0 * np.matmul(co.T, g[:, :, None] * cv[None])
-        t *= gamma[None]  # gamma o T
-        z = np.matmul(co.T, t)  # C_o^T (gamma o T), (ms, o, N)
-        out[s:s + ms] -= (z.reshape(ms * o, n) @ cv).reshape(ms, o, v)  # - K(X)
-    return out
+    return apply(operator(mo_energy, mo_coeff, gamma, n_occ), x.reshape(m, o * v), multiplicity).reshape(m, o, v)
+
+
+def exchange_diagonal(op: Operator) -> np.ndarray:
+    """(ii|aa) = [(C_o o C_o)^T gamma (C_v o C_v)]_ia, (n_occ, n_vir) eV."""
+    return (op.co * op.co).T @ op.gamma @ (op.cv * op.cv)
+
+
+def coulomb_diagonal(op: Operator) -> np.ndarray:
+    """(ia|ia) = B_ia^T gamma B_ia with B_ia(mu) = C_mu,i C_mu,a; (n_occ, n_vir) eV, O(N^2 n_occ n_vir)."""
+    n, o = op.co.shape
+    v = op.cv.shape[1]
+    b = (op.co[:, :, None] * op.cv[:, None, :]).reshape(n, o * v)
+    return np.einsum("mk,mk->k", op.gamma @ b, b).reshape(o, v)
 
 
 def approximate_diagonal(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray,
                          n_occ: int) -> np.ndarray:
-    """Preconditioner diagonal (n_occ, n_vir), eV: De_ia - (ii|aa).
-
-    (ii|aa) = sum_{mu,nu} C_mu,i^2 gamma_mu,nu C_nu,a^2 = [(C_o o C_o)^T gamma (C_v o C_v)]_ia.
-    This is the exact triplet diagonal; for singlets it lacks 2 (ia|ia), which is small for
-    delocalised orbitals.
-    """
-    co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
-    de = mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]
-    return de - (co * co).T @ gamma @ (cv * cv)
+    """Triplet CIS diagonal De_ia - (ii|aa), (n_occ, n_vir) eV; for singlets it lacks 2 (ia|ia)."""
+    op = operator(mo_energy, mo_coeff, gamma, n_occ)
+    return op.de - exchange_diagonal(op)
 
 
 def window_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int,
                   multiplicity: int = 1, window: int = WINDOW):
     """Exact CIS matrix on the frontier window: the ``window`` highest occupied x ``window`` lowest
-    virtual orbitals. Built from the ZDO integrals directly in O(N^2 w^2) for w = window:
+    virtual orbitals. Built from the ZDO integrals directly in O(N^2 w^2 + N w^4) for w = window:
 
         (ia|jb) = B_ia^T gamma B_jb ,  B_ia(mu) = C_mu,i C_mu,a
         (ij|ab) = D_ij^T gamma D_ab ,  D_pq(mu) = C_mu,p C_mu,q
@@ -132,7 +187,7 @@ def window_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray
 def window_eigen(mo_energy, mo_coeff, gamma, n_occ, multiplicity=1, window=WINDOW):
     """Eigen-decomposition of :func:`window_matrix`: (eigenvalues, eigenvectors, flat indices)."""
     a, flat = window_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity, window)
-    lam, u = scipy.linalg.eigh(a)
+    lam, u = np.linalg.eigh(a)
     return lam, u, flat
 
 
@@ -167,6 +222,25 @@ def frontier_guess(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarra
     return out
 
 
+def _lowest_eigh(a: np.ndarray, n: int):
+    """Lowest ``n`` (or more) eigenpairs of the symmetric matrix ``a``, ascending: LAPACK dsyevr for
+    a subset of a larger matrix, numpy's full solver for small ones."""
+    m = a.shape[0]
+    if m > 40 and n < m:
+        w, v, _, _, info = _syevr(np.asfortranarray(a), range="I", il=1, iu=n, overwrite_a=1)
+        if info == 0:
+            return w[:n], v[:, :n]
+    return np.linalg.eigh(a)
+
+
+def _safe(den: np.ndarray, eps: float = 1e-8) -> np.ndarray:
+    """Denominators kept at least ``eps`` away from zero (in place)."""
+    tiny = np.abs(den) < eps
+    if tiny.any():
+        den[tiny] = np.copysign(eps, den[tiny])
+    return den
+
+
 def window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity=1, window=WINDOW, eig=None):
     """Two-level Davidson preconditioner M: the exact CIS matrix (:func:`window_matrix`) on the frontier
     window, the diagonal ``diag`` elsewhere; returned as a function (residuals, Ritz vectors, Ritz
@@ -175,15 +249,11 @@ def window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity=
     keeps the accurate window block from handing back the current vector."""
     lam, u, flat = eig if eig is not None else window_eigen(mo_energy, mo_coeff, gamma, n_occ, multiplicity,
                                                              window)
+    diag = np.asarray(diag, dtype=float).ravel()
 
-    def solve(rows, theta):  # (M - theta)^-1 rows, row by row
-        out = np.empty_like(rows)
-        for r in range(rows.shape[0]):
-            den = diag - theta[r]
-            out[r] = rows[r] / np.where(np.abs(den) < 1e-8, np.copysign(1e-8, den), den)
-            dl = lam - theta[r]
-            dl = np.where(np.abs(dl) < 1e-8, np.copysign(1e-8, dl), dl)
-            out[r, flat] = u @ ((u.T @ rows[r, flat]) / dl)
+    def solve(rows, theta):  # (M - theta)^-1 rows, all rows at once
+        out = rows / _safe(diag[None, :] - theta[:, None])
+        out[:, flat] = ((rows[:, flat] @ u) / _safe(lam[None, :] - theta[:, None])) @ u.T
         return out
 
     def precondition(resid, vec, theta):
@@ -197,133 +267,196 @@ def window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity=
 
 def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = None, tol: float = CONV_TOL,
              max_iter: int = 200, max_space: int | None = None, rng: np.random.Generator | None = None,
-             noise: float = 1e-3, guess: np.ndarray | None = None, precondition=None):
-    """Lowest eigenpairs of a symmetric operator by Davidson's method (Davidson 1975).
+             noise: float = NOISE, guess: np.ndarray | None = None, precondition=None,
+             keep: int | None = None, depth: int = DEPTH):
+    """Lowest eigenpairs of a symmetric operator by the block Davidson method (Davidson 1975; Liu 1978).
+
+    Each iteration: Rayleigh-Ritz in the subspace (a small symmetric eigenproblem), residuals
+    r = A x - theta x of the wanted roots, preconditioned corrections t = r / (theta - D) of the
+    unconverged ones only (converged roots are locked: they stay in the subspace but are no longer
+    expanded, and all residuals are checked once more together at the end), orthonormalisation of the
+    new block, one blocked matvec. With ``depth`` > 1 the same Rayleigh-Ritz step is also given the
+    corrections the following iterations would bring, t' = (A - theta) t / (theta - D), from the images
+    of t already computed: a few more matvecs (cheap here) for far fewer small dense eigenproblems.
+    When the subspace is full it restarts from the lowest Ritz vectors plus the previous iteration's
+    Ritz vectors of the wanted roots ("GD+k"; Murray, Racine & Davidson 1992; Stathopoulos & Saad 1998),
+    which keeps most of the convergence of the unrestarted method.
 
     Parameters
     ----------
     matvec : callable, (m, dim) -> (m, dim), the operator applied to rows
     diag : (dim,) diagonal (approximate) used to precondition and to choose the start vectors
     n_roots : eigenpairs wanted
-    n_guess : start vectors (unit vectors on the smallest diagonal entries); default
-        max(2 n_roots + 2, n_roots + 8)
+    n_guess : start vectors (unit vectors on the smallest diagonal entries, extended over ties so
+        that no degenerate group of configurations is cut); default n_roots + max(4, n_roots // 2)
     rng : random generator for a small admixture (``noise``) to every start vector. Unit vectors of a
         symmetric molecule each belong to one symmetry species, and Davidson's subspace never leaves
         the species of its start vectors: a low root of a species absent from them would be missed
-        (seen for a 48-centre rhombic flake and one root). The admixture gives every species a foothold.
-        None: no admixture.
+        (seen for a 48-centre rhombic flake and one root). The admixture gives every species a foothold:
+        once the roots found so far converge below ``noise``, the residual is dominated by the missing
+        species and the expansion picks it up. None: no admixture.
     guess : optional (m, dim) start vectors used instead of unit vectors (m sets n_guess)
     precondition : optional callable (residuals (m, dim), ritz vectors (m, dim), theta (m,)) -> corrections,
-        replacing the diagonal preconditioner
+        replacing the diagonal preconditioner of the first step of each iteration
     tol : residual 2-norm for convergence
-    max_iter : subspace expansions allowed
-    max_space : subspace size at which it collapses to the current Ritz vectors (default 5 n_guess)
+    max_iter : Rayleigh-Ritz steps allowed
+    max_space : subspace size that triggers a restart (default keep + (depth + 2) n_roots)
+    keep : Ritz vectors kept at a restart (default n_roots + max(4, n_roots // 2))
+    depth : corrections per unconverged root and iteration (see above)
 
     Returns
     -------
     (energies (n_roots,), vectors (n_roots, dim), iterations, matvecs)
 
-    Raises ConvergenceError when a root is not converged after ``max_iter`` expansions.
+    Raises ConvergenceError when a root is not converged after ``max_iter`` iterations.
     """
+    diag = np.asarray(diag, dtype=float).ravel()
     dim = diag.shape[0]
-    k = int(n_roots)
+    k = min(int(n_roots), dim)
+    extra = max(4, k // 2)
     if guess is not None:
-        n_guess = guess.shape[0]
-    n_guess = min(dim, max(k, n_guess if n_guess is not None else max(2 * k + 2, k + 8)))
-    # subspace of up to 5 n_guess vectors before a collapse: on a 500-centre polyene 179 sigma-vectors
-    # against 198 with 3 n_guess; memory 2 x 8 x dim bytes per vector (0.5 GB at 1,000 centres)
-    max_space = min(dim, max(max_space or 0, 5 * n_guess, n_guess + 2 * k))
-    # stable order: among equal diagonal entries (degenerate orbitals) the lower index first
-    order = np.argsort(diag, kind="stable")[:n_guess]
-    basis = np.zeros((max_space, dim))
-    if guess is not None:
-        basis[:n_guess] = guess[:n_guess]
+        basis = np.array(guess, dtype=float, copy=True)
     else:
-        basis[np.arange(n_guess), order] = 1.0
-    if rng is not None and noise > 0 and n_guess < dim:
-        basis[:n_guess] += noise * rng.standard_normal((n_guess, dim)) / np.sqrt(dim)
-    if guess is not None or (rng is not None and noise > 0 and n_guess < dim):
-        q, _ = np.linalg.qr(basis[:n_guess].T)
-        basis[:n_guess] = q.T
-    images = np.zeros((max_space, dim))
-    images[:n_guess] = matvec(basis[:n_guess])
-    m = n_guess
-    sub = basis[:m] @ images[:m].T
-    n_mv = n_guess
-    theta = vec = None
+        n_guess = min(dim, max(k, n_guess if n_guess is not None else k + extra))
+        order = np.argsort(diag, kind="stable")  # among ties (degenerate orbitals) the lower index first
+        # extend over near-ties so that a degenerate group of start configurations is never cut
+        while n_guess < dim and diag[order[n_guess]] - diag[order[n_guess - 1]] < 1e-6:
+            n_guess += 1
+        basis = np.zeros((n_guess, dim))
+        basis[np.arange(n_guess), order[:n_guess]] = 1.0
+    if rng is not None and noise > 0 and basis.shape[0] < dim:
+        basis += noise * rng.standard_normal(basis.shape) / np.sqrt(dim)
+    basis, _ = _orthonormal_complement(np.zeros((0, dim)), basis)
+    if basis.shape[0] < k:
+        raise ValueError(f"{basis.shape[0]} independent start vectors for {k} roots")
+    keep = min(dim, max(k, keep or k + extra))
+    max_space = min(dim, max(max_space or keep + (depth + 2) * k, basis.shape[0] + k, keep + k))
+    # subspace basis V and its images W = A V as rows of one preallocated array
+    vw = np.empty((2, max_space, dim))
+    m = basis.shape[0]
+    vw[0, :m] = basis
+    vw[1, :m] = matvec(basis)
+    n_mv = m
+    sub = vw[0, :m] @ vw[1, :m].T
     res_norm = np.full(k, np.inf)
+    locked = np.zeros(k, dtype=bool)  # converged roots: residuals not recomputed until the final check
+    prev = None  # coefficients of the previous iteration's Ritz vectors in the current basis
     for it in range(1, max_iter + 1):
-        sub = 0.5 * (sub + sub.T)
-        theta_all, s = scipy.linalg.eigh(sub)
+        theta_all, s = _lowest_eigh(0.5 * (sub + sub.T), min(m, keep))
         kk = min(k, m)
         theta, s_k = theta_all[:kk], s[:, :kk]
-        vec = s_k.T @ basis[:m]
-        resid = s_k.T @ images[:m] - theta[:, None] * vec
-        res_norm = np.linalg.norm(resid, axis=1)
-        todo = np.flatnonzero(res_norm >= tol)
-        if kk == k and todo.size == 0:
-            return theta, vec, it, n_mv
-        # preconditioned residuals (Davidson 1975): t = r / (theta - D), denominators kept from zero
+        active = np.flatnonzero(~locked[:kk])
+        if active.size == 0:  # all locked: final check of every residual together
+            active = np.arange(kk)
+            locked[:] = False
+        xr = np.matmul(s_k[:, active].T, vw[:, :m])  # Ritz vectors and their images, (2, a, dim)
+        resid = xr[1] - theta[active, None] * xr[0]
+        res_norm[active] = np.sqrt(np.einsum("ij,ij->i", resid, resid))
+        conv = res_norm[active] < tol
+        if kk == k and active.size == k and np.all(conv):
+            return theta, xr[0], it, n_mv
+        locked[active[conv]] = True
+        todo = active[~conv]
+        if todo.size == 0:
+            continue  # every root converged once: the next pass checks them all together
+        shifts = theta[todo]
         if precondition is not None:
-            new = precondition(resid[todo], vec[todo], theta[todo])
+            new = precondition(resid[~conv], xr[0][~conv], shifts)
         else:
-            denom = theta[todo, None] - diag[None, :]
-            denom = np.where(np.abs(denom) < 1e-8, np.copysign(1e-8, denom), denom)
-            new = resid[todo] / denom
-        if m + new.shape[0] > max_space:
-            # collapse: keep the lowest Ritz vectors (at least the wanted ones)
-            keep = min(m, max(n_guess, k))
-            s_keep = s[:, :keep]
-            basis[:keep] = s_keep.T @ basis[:m]
-            images[:keep] = s_keep.T @ images[:m]
-            basis[keep:m] = 0.0
-            images[keep:m] = 0.0
-            m = keep
-            sub = basis[:m] @ images[:m].T
-        new = _orthonormal_complement(basis[:m], new)
-        if new.shape[0] == 0:
-            break
-        n_new = min(new.shape[0], max_space - m)
-        basis[m:m + n_new] = new[:n_new]
-        images[m:m + n_new] = matvec(new[:n_new])
-        n_mv += n_new
-        # extend the subspace matrix by the new rows/columns only
-        cross = basis[:m + n_new] @ images[m:m + n_new].T  # (m+n_new, n_new)
-        grown = np.empty((m + n_new, m + n_new))
-        grown[:m, :m] = sub
-        grown[:, m:] = cross
-        grown[m:, :m] = cross[:m].T
-        sub = grown
-        m += n_new
+            new = resid[~conv] / _safe(shifts[:, None] - diag[None, :])
+        if m + min(depth * todo.size, max_space - keep) > max_space:
+            # restart from the lowest Ritz vectors and the previous iteration's ones ("GD+k")
+            cols = s[:, :min(m, keep)]
+            if prev is not None:
+                p = np.zeros((m, prev.shape[1]))
+                p[:prev.shape[0]] = prev
+                p, _ = _orthonormal_complement(cols.T, p.T)
+                cols = np.concatenate([cols, p[:max(0, max_space - todo.size - cols.shape[1])].T], axis=1)
+            vw[:, :cols.shape[1]] = np.matmul(cols.T, vw[:, :m])
+            sub = cols.T @ sub @ cols
+            m = cols.shape[1]
+            s_k = np.eye(m)[:, :kk]
+        prev = s_k
+        m0 = m
+        for step in range(depth):
+            new, kept = _orthonormal_complement(vw[0, :m], new)
+            n_new = min(new.shape[0], max_space - m)
+            if n_new == 0:
+                break
+            vw[0, m:m + n_new] = new[:n_new]
+            vw[1, m:m + n_new] = matvec(new[:n_new])
+            n_mv += n_new
+            cross = vw[0, :m + n_new] @ vw[1, m:m + n_new].T  # (m + n_new, n_new)
+            grown = np.empty((m + n_new, m + n_new))
+            grown[:m, :m] = sub
+            grown[:, m:] = cross
+            grown[m:, :m] = cross[:m].T
+            sub = grown
+            if step + 1 < depth:
+                # the correction the next iteration would add: (A - theta) t / (theta - D)
+                shifts = shifts[kept[:n_new]] if kept is not None else np.full(n_new, shifts.min())
+                r2 = vw[1, m:m + n_new] - shifts[:, None] * vw[0, m:m + n_new]
+                new = r2 / _safe(shifts[:, None] - diag[None, :])
+            m += n_new
+        if m == m0:
+            break  # no new direction: the subspace is exhausted
     raise ConvergenceError(
         f"Davidson CIS did not converge: largest residual {np.max(res_norm):.1e} eV after {max_iter} "
         f"iterations (tolerance {tol:.0e})")
 
 
-def _orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e-6) -> np.ndarray:
-    """Rows of ``new`` made orthonormal to ``basis`` rows and to each other (two Gram-Schmidt passes
-    against the basis, then a pivoted QR among themselves); nearly dependent rows are dropped."""
-    norms = np.linalg.norm(new, axis=1)
-    new = new[norms > 0] / norms[norms > 0, None]
-    for _ in range(2):
-        new = new - (new @ basis.T) @ basis
-    if new.shape[0] == 0:
-        return new
-    q, r, _ = scipy.linalg.qr(new.T, mode="economic", pivoting=True)
-    diag_r = np.abs(np.diag(r))
-    rank = int(np.sum(diag_r > drop * max(diag_r[0], 1e-300))) if diag_r.size else 0
-    if rank == 0 or diag_r[0] < drop:
-        return new[:0]
-    out = q[:, :rank].T
-    # one more pass against the basis after QR (guards against loss of orthogonality)
-    out = out - (out @ basis.T) @ basis
-    out /= np.linalg.norm(out, axis=1)[:, None]
-    return out
+def _orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e-6):
+    """Rows of ``new`` made orthonormal to the (orthonormal) ``basis`` rows and to each other.
+
+    Block classical Gram-Schmidt against the basis, with a second pass when the first removed much of
+    a vector (Kahan-Parlett "twice is enough"); rows left with less than sqrt(``drop``) of their norm
+    are dropped; then Cholesky orthonormalisation of the block (Gram-Schmidt order: row j stays
+    mostly the j-th input), or canonical (Loewdin) orthonormalisation when the rows are nearly
+    dependent. When the block was ill-conditioned, both steps run once more, so that the subspace
+    stays orthonormal to rounding (a loss would show up as wrong Ritz values).
+
+    Returns (rows (r, dim), indices of ``new`` the rows stem from, or None after a Loewdin mixing).
+    """
+    n0 = np.einsum("ij,ij->i", new, new)
+    idx = np.flatnonzero(n0 > 0)
+    if idx.size < new.shape[0]:
+        new, n0 = new[idx], n0[idx]
+    for rnd in range(2):
+        if basis.shape[0] and new.shape[0]:
+            new = new - (new @ basis.T) @ basis
+            nn = np.einsum("ij,ij->i", new, new)
+            if rnd == 0 and np.min(nn / n0) < 0.5:
+                new -= (new @ basis.T) @ basis
+                nn = np.einsum("ij,ij->i", new, new)
+            if rnd == 0:
+                ok = nn > drop * n0
+                if not ok.all():
+                    new, idx = new[ok], idx[ok]
+        if new.shape[0] == 0:
+            return new, idx
+        s = new @ new.T
+        d = np.diag(s)
+        try:
+            chol = np.linalg.cholesky(s)
+            piv = np.diag(chol) ** 2 / d
+            if np.min(piv) < drop:
+                raise np.linalg.LinAlgError
+            new = np.linalg.inv(chol) @ new
+            well = np.min(piv) > 0.01
+        except np.linalg.LinAlgError:
+            lam, u = np.linalg.eigh(s)
+            keep = lam > drop * lam[-1]
+            new = (u[:, keep] / np.sqrt(lam[keep])).T @ new
+            idx = None
+            well = False
+        if well:
+            break
+    return new, idx
 
 
 def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int, n_states: int,
            multiplicity: int = 1, *, tol: float = CONV_TOL, max_iter: int = 200, seed: int = 20240501,
-           window: int | None = None):
+           window: int | None = None, max_space: int | None = None, n_guess: int | None = None):
     """Lowest ``n_states`` CIS roots by the matrix-free Davidson method.
 
     Same arguments and result as :func:`ppp.solvers.cis.kernel` (a ``CISResult``); memory O(N^2)
@@ -337,28 +470,38 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
 
     if multiplicity not in (1, 3):
         raise ValueError("multiplicity must be 1 or 3")
-    mo_energy = np.asarray(mo_energy, dtype=float)
-    mo_coeff = np.asarray(mo_coeff, dtype=float)
-    gamma = np.asarray(gamma, dtype=float)
-    n = mo_coeff.shape[0]
+    op = operator(mo_energy, mo_coeff, gamma, n_occ)
+    n = op.co.shape[0]
     o, v = n_occ, n - n_occ
     k = max(0, min(int(n_states), o * v))
     if k == 0:
         return CISResult(multiplicity, np.zeros(0), np.zeros((0, o, v)))
-    diag = approximate_diagonal(mo_energy, mo_coeff, gamma, n_occ).ravel()
+    diag = op.de - exchange_diagonal(op)
+    if multiplicity == 1 and o * v <= EXACT_DIAGONAL_MAX:
+        diag = diag + 2.0 * coulomb_diagonal(op)
+    diag = diag.ravel()
 
     def matvec(rows):
-        return sigma(mo_energy, mo_coeff, gamma, n_occ, rows.reshape(-1, o, v), multiplicity).reshape(
-            rows.shape[0], -1)
+        return apply(op, rows, multiplicity)
 
     extra = {}
+    large = n > LARGE_CENTRES
     if window is None:
-        window = window_size(n)
+        window = window_size(n) if large else 0
+    if large:
+        # sigma-vectors dominate: fewer of them (one correction per root and iteration, a larger
+        # subspace) count more than the small dense eigenproblems of each iteration
+        n_guess = n_guess or min(o * v, max(2 * k + 2, k + 8))
+        extra.update(depth=1, keep=n_guess, max_space=max_space or 5 * n_guess)
+    else:
+        extra.update(max_space=max_space)
     if window > 0:
-        n_guess = min(o * v, max(2 * k + 2, k + 8))
+        n_guess = min(o * v, n_guess or k + max(4, k // 2))
         eig = window_eigen(mo_energy, mo_coeff, gamma, n_occ, multiplicity, window)
-        extra = dict(guess=frontier_guess(mo_energy, mo_coeff, gamma, n_occ, n_guess, multiplicity, window, eig),
+        extra.update(guess=frontier_guess(mo_energy, mo_coeff, gamma, n_occ, n_guess, multiplicity, window, eig),
                      precondition=window_preconditioner(mo_energy, mo_coeff, gamma, n_occ, diag, multiplicity,
                                                         window, eig))
+    else:
+        extra.update(n_guess=n_guess)
     w, x, _, _ = davidson(matvec, diag, k, tol=tol, max_iter=max_iter, rng=np.random.default_rng(seed), **extra)
     return CISResult(multiplicity, w, x.reshape(k, o, v))
