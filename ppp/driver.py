@@ -19,7 +19,7 @@ from .model.hamiltonian import Model, build_model
 from .solvers import cis as cis_solver
 from .solvers import scf as scf_solver
 from .solvers import stability
-from .solvers.guess import kekule_guess
+from .solvers.guess import atomic_start, kekule_guess
 from .solvers.threads import blas_threads
 from .structure.geometry import centre_coordinates
 from .structure.perceive import PiSystem, perceive
@@ -242,12 +242,16 @@ def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0
         and as a fallback below
     Returns (model, scf): the model carries the final core Hamiltonian. Raises ConvergenceError.
     """
-    kw = dict(max_iter=options.max_iter, alt_dens0=dens_guess, alt_first=model.n_centres >= KEKULE_START_FROM)
+    kekule_first = model.n_centres >= KEKULE_START_FROM
+    kw = dict(max_iter=options.max_iter, alt_dens0=dens_guess, alt_first=kekule_first)
+    if dens0 is None and not (kekule_first and dens_guess is not None):
+        # superposed-atoms start (ppp.solvers.guess.atomic_start): fewer iterations than the core start
+        dens0 = atomic_start(model.core, model.gamma, model.core_charges, model.n_electrons, model.n_occ)
     if model.bond_order_beta is not None:
         try:
             vb = variable_beta.iterate(model.core, model.gamma, model.n_occ, model.types, model.bonds,
                                        model.bond_order_beta, scf_solver.kernel, dens0=dens0,
-                                       scf_iterate=scf_solver.iterate, **kw)
+                                       scf_iterate=scf_solver.iterate, scf_finish=scf_solver.finish, **kw)
         except ConvergenceError as err:
             raise ConvergenceError(f"chromophore {index + 1} ({model.n_centres} centres): {err.reason}") from None
         return replace(model, core=vb.core), vb.scf

@@ -96,6 +96,22 @@ def beta_factor(length, settings: BondOrderBeta):
     return np.exp(-(r - settings.reference_length) / settings.decay_length)
 
 
+def _factor_function(settings: BondOrderBeta):
+    """Function p -> beta(r(p)) / beta(r_ref) (as :func:`beta_factor` of :func:`bond_length`) with the
+    constants of the settings evaluated once, for the per-iteration core update."""
+    a, b = settings.length_intercept, settings.length_slope
+    if settings.law == "overlap":
+        k = settings.slater_exponent / BOHR_ANGSTROM
+        s_ref = float(slater_pi_overlap(settings.reference_length, settings.slater_exponent))
+
+        def factor(order):
+            rho = k * (a - b * order)
+            return np.exp(-rho) * (1.0 + rho * (1.0 + rho * (0.4 + rho / 15.0))) / s_ref
+        return factor
+    r_ref, delta = settings.reference_length, settings.decay_length
+    return lambda order: np.exp(-((a - b * order) - r_ref) / delta)
+
+
 def variable_bonds(types, bonds: np.ndarray, settings: BondOrderBeta) -> np.ndarray:
     """Boolean mask (M,) of the bonds whose beta follows the bond order."""
     wanted = {tuple(sorted(p)) for p in settings.pairs}
@@ -122,7 +138,7 @@ class VariableBetaResult:
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.ndarray,
             settings: BondOrderBeta, scf_kernel, dens0: np.ndarray | None = None,
-            scf_iterate=None, **scf_kwargs) -> VariableBetaResult:
+            scf_iterate=None, scf_finish=None, scf_finish_tol=(1e-11, 1e-9), **scf_kwargs) -> VariableBetaResult:
     """Iterate SCF -> bond orders -> lengths -> beta until beta is self-consistent.
 
     Parameters
@@ -137,6 +153,10 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
         (``ppp.solvers.scf.iterate``). When given, the betas are first updated inside one SCF run at
         every iteration (one DIIS history instead of one SCF per beta cycle); the cycle below then
         only confirms the fixed point, or starts from scratch when that joint run did not converge.
+    scf_finish : optional ``(core, gamma, n_occ, dens, converged, iterations, strategy) -> SCFResult``
+        (``ppp.solvers.scf.finish``). With it, a joint run that converges to the full SCF tolerance
+        (``conv_tol``/``conv_tol_grad`` of ``scf_kwargs``, else ``scf_finish_tol``) with a last beta
+        change below ``tol_ev`` is the result (cycles = 1): no confirming SCF cycles.
 
     Raises ConvergenceError when an SCF fails or the cycle does not settle within ``max_cycles``.
     """
@@ -153,10 +173,11 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
     loose = dict(scf_kwargs, conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD)
     if scf_iterate is not None and mask.any():
         core0 = core.copy()
+        factor = _factor_function(settings)
 
         def core_of(d):
             c = core0.copy()
-            c[i, j] = c[j, i] = beta_ref * beta_factor(bond_length(d[i, j], settings), settings)
+            c[i, j] = c[j, i] = beta_ref * factor(d[i, j])
             return c
 
         start = dens
@@ -167,8 +188,21 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
             else:
                 c = np.linalg.eigh(core)[1][:, :n_occ]
                 start = 2.0 * c @ c.T
-        ok, _, joint = scf_iterate(core, gamma, n_occ, start, max_iter=scf_kwargs.get("max_iter", 100),
-                                   conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD, core_update=core_of)
+        # One SCF run in which the betas follow the density at every iteration, to the full SCF
+        # tolerance and with the beta change between the last two iterations below tol_ev: its density
+        # is then an SCF solution of the fixed model core_of(P) (same |FP - PF| test as a separate SCF
+        # on that core) and the betas are self-consistent, so no confirming cycle is needed.
+        full = dict(conv_tol=scf_kwargs.get("conv_tol", scf_finish_tol[0]),
+                    conv_tol_grad=scf_kwargs.get("conv_tol_grad", scf_finish_tol[1]))
+        ok, its, joint = scf_iterate(core, gamma, n_occ, start, max_iter=scf_kwargs.get("max_iter", 100),
+                                     core_update=core_of, core_tol=settings.tol_ev, **full)
+        if ok and scf_finish is not None:
+            core = core_of(joint)
+            scf = scf_finish(core, gamma, n_occ, joint, True, its, "diis")
+            if scf.converged:
+                orders = scf.dens[bonds[:, 0], bonds[:, 1]].copy()
+                lengths[mask] = bond_length(orders[mask], settings)
+                return VariableBetaResult(core, scf, orders, lengths, 1)
         if ok:  # the cycle below now only has to confirm the fixed point
             dens = joint
             core = core_of(joint)
