@@ -4,14 +4,16 @@
 """
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, replace
+from functools import lru_cache
 
 import numpy as np
 from rdkit import Chem
 
 from .analysis.timings import StageTimer, maybe_stage
 from .analysis.properties import (Configuration, GroundState, dominant_configurations, ground_state,
-                                  oscillator_strengths, polarization, transition_dipoles)
+                                  oscillator_strengths, polarizations, transition_dipoles)
 from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
 from .model import params as param_registry
 from .model import variable_beta
@@ -217,19 +219,20 @@ class MoleculeResult:
 
 def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model: Model) -> tuple[State, ...]:
     n_occ = model.n_occ
-    if multiplicity == 1 and len(res.energies):
-        tdm = transition_dipoles(scf.mo_coeff, n_occ, res.amplitudes, model.coords)
-        f = oscillator_strengths(res.energies, tdm)
-    else:
-        tdm = np.zeros((len(res.energies), 3))
-        f = np.zeros(len(res.energies))
+    k = len(res.energies)
     confs = dominant_configurations(res.amplitudes, n_occ)
-    out = []
-    for k, e in enumerate(res.energies):
-        angle, label = polarization(tdm[k]) if multiplicity == 1 else (None, "-")
-        out.append(State(multiplicity, k + 1, chrom, float(e), float(f[k]), tuple(float(x) for x in tdm[k]),
-                         angle, label, confs[k]))
-    return tuple(out)
+    energies = res.energies.tolist()
+    if multiplicity == 1 and k:
+        tdm = transition_dipoles(scf.mo_coeff, n_occ, res.amplitudes, model.coords)
+        f = oscillator_strengths(res.energies, tdm).tolist()
+        pol = polarizations(tdm)
+        dips = [tuple(row) for row in tdm.tolist()]
+    else:
+        f = [0.0] * k
+        pol = [(None, "-")] * k
+        dips = [(0.0, 0.0, 0.0)] * k
+    return tuple(State(multiplicity, n + 1, chrom, energies[n], f[n], dips[n], pol[n][0], pol[n][1], confs[n])
+                 for n in range(k))
 
 
 def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0: np.ndarray | None = None,
@@ -378,9 +381,9 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     ``bond_length`` (A) scales 2D coordinates; default: the parameter set's standard length.
     """
     if bond_length is None:
-        bond_length = param_registry.load(options.parameters).bond_length_angstrom
+        bond_length = load_parameters(options.parameters).bond_length_angstrom
     with maybe_stage(timer, "perception"):
-        work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+        work = Chem.RemoveHs(mol, sanitize=False) if mol.GetNumAtoms() > mol.GetNumHeavyAtoms() else mol
         systems = perceive(work)
     for k, sys_ in enumerate(systems):
         if sys_.n_centres > options.max_centres:
@@ -429,12 +432,27 @@ def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer 
     """
     if pset is None:
         with maybe_stage(timer, "parameters"):
-            pset = param_registry.load(options.parameters)
+            pset = load_parameters(options.parameters)
     out = []
     for prep in prepare(mol, options, pset.bond_length_angstrom, timer):
         with maybe_stage(timer, "model (gamma, h)"):
             out.append((prep.system, model_for(prep, pset, options)))
     return tuple(out)
+
+
+@lru_cache(maxsize=16)
+def _registry_set(name: str | None) -> param_registry.ParameterSet:
+    return param_registry.load(name)
+
+
+def load_parameters(name_or_path: str | None) -> param_registry.ParameterSet:
+    """:func:`ppp.model.params.load`, with registry names (and None, the default set) resolved once per
+    process: resolving a name lists and stats the parameter folders (~0.4 ms, a tenth of a small
+    molecule's whole computation). File paths are resolved at every call, as before."""
+    if name_or_path is None or (os.sep not in name_or_path and "/" not in name_or_path
+                                and not name_or_path.endswith(".toml") and not os.path.exists(name_or_path)):
+        return _registry_set(name_or_path)
+    return param_registry.load(name_or_path)
 
 
 def compute(structure: str | Chem.Mol, name: str | None = None, options: Options | None = None,
@@ -470,7 +488,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
                 smiles_in = Chem.MolToSmiles(mol)
             canonical = Chem.MolToSmiles(Chem.RemoveHs(mol, sanitize=False))
         with maybe_stage(timer, "parameters"):
-            pset = param_registry.load(opts.parameters)
+            pset = load_parameters(opts.parameters)
         chroms = []
         for k, (sys_, model) in enumerate(build_models(mol, opts, timer, pset=pset)):
             with maybe_stage(timer, "perception"):

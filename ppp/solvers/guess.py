@@ -83,7 +83,20 @@ def kekule_guess(mol: Chem.Mol, system) -> np.ndarray | None:
         as in :func:`ppp.driver.build_models`, so that atom indices match)
     system : :class:`ppp.structure.perceive.PiSystem` (uses atom_indices, n_pi, n_electrons)
     """
-    work = Chem.RemoveHs(mol, sanitize=False) if any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()) else mol
+    pairs = getattr(system, "double_bonds", None)
+    if pairs is None:  # a system perceived elsewhere: Kekulize here (the same RDKit call as perception)
+        pairs = _kekule_pairs(mol, system)
+        if pairs is None:
+            return None
+    dens = localized_density(system.n_pi, np.asarray(pairs, dtype=int).reshape(-1, 2))
+    if dens is None or abs(np.trace(dens) - system.n_electrons) > 1e-9:
+        return None
+    return dens
+
+
+def _kekule_pairs(mol: Chem.Mol, system) -> list[tuple[int, int]] | None:
+    """Local index pairs of the double bonds of RDKit's Kekule structure of ``mol`` within ``system``."""
+    work = Chem.RemoveHs(mol, sanitize=False) if mol.GetNumAtoms() > mol.GetNumHeavyAtoms() else mol
     kek = Chem.Mol(work)
     try:
         Chem.Kekulize(kek, clearAromaticFlags=True)
@@ -96,7 +109,4 @@ def kekule_guess(mol: Chem.Mol, system) -> np.ndarray | None:
             i, j = local.get(b.GetBeginAtomIdx()), local.get(b.GetEndAtomIdx())
             if i is not None and j is not None:
                 pairs.append((i, j))
-    dens = localized_density(system.n_pi, np.array(pairs, dtype=int).reshape(-1, 2))
-    if dens is None or abs(np.trace(dens) - system.n_electrons) > 1e-9:
-        return None
-    return dens
+    return pairs
