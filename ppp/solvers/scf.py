@@ -83,11 +83,11 @@ def _numpy_builder(gamma: np.ndarray):
     """(core, gamma, dens) -> (F, E) for one fixed gamma: the module-doc equations, with gamma / 2 and
     the diagonal index prepared once (a few microseconds less per SCF iteration at dye size)."""
     half = 0.5 * gamma
-    diag = np.arange(gamma.shape[0])
+    step = gamma.shape[0] + 1
 
     def build(core, gamma_, dens):
         f = core - dens * half
-        f[diag, diag] += gamma @ dens[diag, diag]
+        f.flat[::step] += gamma @ dens.diagonal()  # the diagonal, as a strided view
         return f, 0.5 * (float(np.vdot(dens, core)) + float(np.vdot(dens, f)))
     return build
 
@@ -103,7 +103,9 @@ def fock_builder(n_centres: int):
 def density(mo_coeff: np.ndarray, n_occ: int) -> np.ndarray:
     """Closed-shell density P = 2 C_occ C_occ^T."""
     c = mo_coeff[:, :n_occ]
-    return 2.0 * c @ c.T
+    p = c @ c.T
+    p *= 2.0
+    return p
 
 
 def eigh(mat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
