@@ -199,7 +199,7 @@ def _bordered(n: int) -> np.ndarray:
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
-            use_diis: bool = True, diis_space: int = 8, level_shift: float = 0.0, damping: float = 0.0,
+            use_diis: bool = True, diis_space: int = 12, level_shift: float = 0.0, damping: float = 0.0,
             conv_tol: float = CONV_TOL_ENERGY, conv_tol_grad: float = CONV_TOL_GRAD, core_update=None,
             core_tol: float = np.inf):
     """One SCF attempt from a starting density. Returns (converged, iterations, dens).
