@@ -199,7 +199,7 @@ def _bordered(n: int) -> np.ndarray:
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
-            use_diis: bool = True, diis_space: int = 12, level_shift: float = 0.0, damping: float = 0.0,
+            use_diis: bool = True, diis_space: int = 8, level_shift: float = 0.0, damping: float = 0.0,
             conv_tol: float = CONV_TOL_ENERGY, conv_tol_grad: float = CONV_TOL_GRAD, core_update=None,
             core_tol: float = np.inf):
     """One SCF attempt from a starting density. Returns (converged, iterations, dens).
@@ -315,17 +315,22 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
 
 def finish(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens: np.ndarray, converged: bool,
            iterations: int, strategy: str) -> SCFResult:
-    """The SCFResult of a density P that an SCF run stopped at: orbitals and orbital energies from
-    one eigensolve of the unshifted F(P), which the result returns with P.
+    """The SCFResult of a density P that an SCF run stopped at.
 
-    ``converged`` is kept only when the lowest n_occ of these orbitals reproduce P (aufbau occupation,
-    no hole below the Fermi level). P is returned as it is (idempotent, as built from the orbitals of
-    the last step), so the returned orbitals diagonalise F(P) exactly and reproduce P to the order of
-    the convergence threshold on |FP - PF|.
+    ``converged`` is kept only when the lowest n_occ orbitals of F(P) reproduce P (aufbau occupation,
+    no hole below the Fermi level). A converged P then gets one more Roothaan step: P' from those
+    orbitals, and the orbitals and orbital energies returned diagonalise F(P') exactly. The step costs
+    one eigensolve and takes the error |FP - PF| a few times below the stopping threshold, so that
+    results do not depend on the path that reached the threshold (and a saddle point stays one for an
+    outside program restarted from it).
     """
     fock = fock_matrix(core, gamma, dens)
     mo_energy, mo_coeff = eigh(fock)
     converged = bool(converged) and _is_aufbau(mo_coeff, dens, n_occ)
+    if converged:
+        dens = density(mo_coeff, n_occ)
+        fock = fock_matrix(core, gamma, dens)
+        mo_energy, mo_coeff = eigh(fock)
     err = commutator(fock, dens)
     return SCFResult(
         converged=converged, iterations=int(iterations), e_elec=electronic_energy(core, fock, dens),
