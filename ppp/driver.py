@@ -254,7 +254,8 @@ def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0
         try:
             vb = variable_beta.iterate(model.core, model.gamma, model.n_occ, model.types, model.bonds,
                                        model.bond_order_beta, scf_solver.kernel, dens0=dens0,
-                                       scf_iterate=scf_solver.iterate, scf_finish=scf_solver.finish, **kw)
+                                       scf_iterate=scf_solver.iterate, scf_finish=scf_solver.finish,
+                                       scf_finish_tol=(scf_solver.CONV_TOL_ENERGY, scf_solver.CONV_TOL_GRAD), **kw)
         except ConvergenceError as err:
             raise ConvergenceError(f"chromophore {index + 1} ({model.n_centres} centres): {err.reason}") from None
         return replace(model, core=vb.core), vb.scf

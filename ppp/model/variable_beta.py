@@ -21,6 +21,13 @@ The scheme (each step a published relation):
    than ``tol_ev``. Only the resonance integrals follow the bond orders; the coordinates (and so gamma)
    stay those of the idealised geometry (common practice in variable-beta PPP work).
 
+How the fixed point is reached: given an SCF loop that accepts a density-dependent core (``scf_iterate``),
+the betas are rebuilt from the density at every SCF iteration, inside one DIIS history, and the run
+stops only when |FP - PF| and the energy change meet the full SCF thresholds *and* the last beta change
+is below ``tol_ev``. The density is then an SCF solution of its own final betas, so it is the result
+(no confirming cycle). Only when that joint run fails does the cycle of step 4 run (one SCF per beta
+update, loosely converged, then a full-tolerance SCF on the final betas).
+
 Only bonds whose type pair is listed in the settings are varied (by default C-C); the others keep their
 fixed beta (and any twist factor, which multiplies beta_ref).
 """
