@@ -34,7 +34,8 @@ BRIGHT_F = 0.01
 #: Where centre coordinates can come from (see :class:`Options`).
 COORDINATE_SOURCES = ("depiction", "input", "conformer")
 #: From this many centres on, the SCF starts from the Kekule structure (ppp.solvers.guess) and falls
-#: back to the core-Hamiltonian start; below, the other way round.
+#: back to the core-Hamiltonian start; below (and when there is no Kekule structure), it starts from
+#: superposed atoms (ppp.solvers.guess.atomic_start) and falls back to the Kekule structure.
 KEKULE_START_FROM = 60
 
 
@@ -242,7 +243,7 @@ def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0
 
     dens0 : optional (N, N) starting density (e.g. the converged density of a nearby parameter set)
     dens_guess : optional Kekule-structure start density, used first from ``KEKULE_START_FROM`` centres on
-        and as a fallback below
+        and as a fallback below (where the superposed-atoms start comes first)
     Returns (model, scf): the model carries the final core Hamiltonian. Raises ConvergenceError.
     """
     kekule_first = model.n_centres >= KEKULE_START_FROM
