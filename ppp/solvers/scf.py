@@ -87,7 +87,7 @@ def _numpy_builder(gamma: np.ndarray):
 
     def build(core, gamma_, dens):
         f = core - dens * half
-        f.flat[::step] += gamma @ dens.diagonal()  # the diagonal, as a strided view
+        f.ravel()[::step] += gamma @ dens.diagonal()  # the diagonal, as a strided view of f
         return f, 0.5 * (float(np.vdot(dens, core)) + float(np.vdot(dens, f)))
     return build
 
@@ -181,7 +181,7 @@ class _DIIS:
             a[:n, :n] = bb
         rhs = self._rhs[n]
         _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a)
-        if info != 0 or not abs(coef).max() <= 1e8:  # NaN fails the test as well
+        if info != 0 or not coef @ coef <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
             try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
                 coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
             except np.linalg.LinAlgError:
