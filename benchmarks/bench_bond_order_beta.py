@@ -1,7 +1,8 @@
 """Cost of bond-order-dependent beta (on by default for the classic set) per molecule: the whole
 ``ppp.compute`` from SMILES with the default settings (8 singlets, 8 triplets) with bond-order beta on
 and off, timed in interleaved rounds (best of 9) in the same run, printed as a ratio, with the number of
-Fock builds each SCF needed (bond-order beta: the one joint SCF run in which beta follows the density).
+Fock builds each SCF needed (bond-order beta: the one joint SCF run in which beta follows the density;
+when the cycle-per-SCF fallback ran, only its last cycle).
 
     python -m benchmarks.bench_bond_order_beta [--quick]
 """
