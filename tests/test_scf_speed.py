@@ -180,3 +180,15 @@ def test_parameter_sets_resolved_once_equal_the_registry(tmp_path):
     assert load_parameters(str(path)).sha256 == params.load("classic").sha256
     with pytest.raises(ppp.errors.ParameterError, match="unknown parameter set"):
         load_parameters("no-such-set")
+
+
+def test_no_variable_bond_is_one_plain_scf():
+    """A system without C-C bonds (C#N alone) has no beta to iterate: one SCF, equal to the fixed model's."""
+    m = model_of("CC#N", bond_order_beta=False)
+    st = vb.BondOrderBeta()
+    res = vb.iterate(m.core, m.gamma, m.n_occ, m.types, m.bonds, st, scf.kernel,
+                     scf_iterate=scf.iterate, scf_finish=scf.finish)
+    ref = scf.kernel(m.core, m.gamma, m.n_occ)
+    assert res.cycles == 1 and res.scf.converged
+    np.testing.assert_array_equal(res.core, m.core)
+    assert res.scf.e_elec == pytest.approx(ref.e_elec, abs=1e-10)

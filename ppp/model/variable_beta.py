@@ -176,9 +176,15 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
     lengths = np.full(len(bonds), np.nan)
     if dens0 is not None and mask.any():  # start from the betas that belong to the given density
         core[i, j] = core[j, i] = beta_ref * beta_factor(bond_length(dens0[i, j], settings), settings)
+    if not mask.any():  # no beta follows the bond orders: one SCF on the fixed betas
+        scf = scf_kernel(core, gamma, n_occ, dens0=dens, **scf_kwargs)
+        if not scf.converged:
+            raise ConvergenceError("SCF did not converge")
+        orders = scf.dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)
+        return VariableBetaResult(core, scf, orders, lengths, 1)
     # inner cycles converge the SCF loosely (the betas move anyway); the last SCF uses full tolerance
     loose = dict(scf_kwargs, conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD)
-    if scf_iterate is not None and mask.any():
+    if scf_iterate is not None:
         core0 = core.copy()
         factor = _factor_function(settings)
 
@@ -221,11 +227,6 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
                 f"(last |FP-PF| = {scf.max_error:.1e} eV)")
         dens = scf.dens
         orders = dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)
-        if not mask.any():
-            scf = scf_kernel(core, gamma, n_occ, dens0=dens, **scf_kwargs)
-            if not scf.converged:
-                raise ConvergenceError("SCF did not converge")
-            return VariableBetaResult(core, scf, orders, lengths, cycle + 1)
         r = bond_length(orders[mask], settings)
         new = beta_ref * beta_factor(r, settings)
         change = float(np.max(np.abs(new - core[i, j])))
