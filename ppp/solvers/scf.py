@@ -23,6 +23,8 @@ from scipy.linalg import lapack as _lapack
 CONV_TOL_ENERGY = 1e-11
 CONV_TOL_GRAD = 1e-9
 _EPS = float(np.finfo(float).eps)
+#: max |P(aufbau orbitals of F(P)) - P| below which a converged density counts as aufbau-occupied
+_AUFBAU_TOL = 1e-6
 
 
 @dataclass(frozen=True)
@@ -326,19 +328,17 @@ def finish(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens: np.ndarray, co
     """
     fock = fock_matrix(core, gamma, dens)
     mo_energy, mo_coeff = eigh(fock)
-    converged = bool(converged) and _is_aufbau(mo_coeff, dens, n_occ)
     if converged:
-        dens = density(mo_coeff, n_occ)
-        fock = fock_matrix(core, gamma, dens)
-        mo_energy, mo_coeff = eigh(fock)
+        step = density(mo_coeff, n_occ)
+        # aufbau: the lowest n_occ orbitals of F(P) reproduce P (no hole below the Fermi level)
+        converged = bool(np.abs(step - dens).max() < _AUFBAU_TOL)
+        if converged:
+            dens = step
+            fock = fock_matrix(core, gamma, dens)
+            mo_energy, mo_coeff = eigh(fock)
     err = commutator(fock, dens)
     return SCFResult(
         converged=converged, iterations=int(iterations), e_elec=electronic_energy(core, fock, dens),
         mo_energy=mo_energy, mo_coeff=mo_coeff, dens=dens, fock=fock,
         max_error=float(np.max(np.abs(err))), strategy=strategy,
     )
-
-
-def _is_aufbau(mo_coeff: np.ndarray, dens: np.ndarray, n_occ: int, tol: float = 1e-6) -> bool:
-    """True when the lowest n_occ orbitals (columns of ``mo_coeff``, eigenvectors of F(P)) reproduce P."""
-    return bool(np.max(np.abs(density(mo_coeff, n_occ) - dens)) < tol)
