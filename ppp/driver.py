@@ -23,7 +23,7 @@ from .solvers import scf as scf_solver
 from .solvers import stability
 from .solvers.guess import atomic_start, kekule_guess
 from .solvers.threads import blas_threads
-from .structure.geometry import centre_coordinates
+from .structure.geometry import atom_positions, centre_coordinates
 from .structure.perceive import PiSystem, perceive
 from .structure.twist import embed_conformer, twist_factors
 from .structure.readers import mol_from_smiles
@@ -407,10 +407,13 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     source = "depiction" if options.coordinates == "conformer" else options.coordinates
     all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
     out = []
+    positions = None  # atom positions, made once and shared by the chromophores
     for sys_ in systems:
         with maybe_stage(timer, "coordinates"):
+            if positions is None:
+                positions = atom_positions(work, source)
             coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
-                                        all_pi_bonds=all_bonds)
+                                        all_pi_bonds=all_bonds, positions=positions)
             twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
         out.append(Prepared(sys_, coords, twist))
     return tuple(out)

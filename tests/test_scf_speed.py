@@ -192,3 +192,17 @@ def test_no_variable_bond_is_one_plain_scf():
     assert res.cycles == 1 and res.scf.converged
     np.testing.assert_array_equal(res.core, m.core)
     assert res.scf.e_elec == pytest.approx(ref.e_elec, abs=1e-10)
+
+
+def test_shared_depiction_gives_each_chromophore_the_coordinates_of_its_own():
+    """prepare() depicts a molecule once for all its chromophores; each equals a separate computation."""
+    from ppp.driver import prepare
+    from ppp.structure.geometry import centre_coordinates
+    mol = mol_from_smiles("C=CC=CCCc1ccc(cc1)/N=N/c1ccccc1")
+    preps = prepare(mol, Options())
+    assert len(preps) == 2
+    all_bonds = np.concatenate([p.system.atom_indices[p.system.bonds] for p in preps]).reshape(-1, 2)
+    bl = params.load(None).bond_length_angstrom
+    for p in preps:
+        alone = centre_coordinates(mol, p.system.atom_indices, p.system.bonds, bl, all_pi_bonds=all_bonds)
+        np.testing.assert_array_equal(p.coords, alone)
