@@ -149,8 +149,13 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     n_atoms = kek.GetNumAtoms()
     all_atoms = [kek.GetAtomWithIdx(i) for i in range(n_atoms)]
     all_bonds = [kek.GetBondWithIdx(i) for i in range(kek.GetNumBonds())]
+    ends = [(b.GetBeginAtomIdx(), b.GetEndAtomIdx()) for b in all_bonds]
+    neighbours: list[list[int]] = [[] for _ in range(n_atoms)]  # plain lists: cheaper than RDKit calls
+    for i, j in ends:
+        neighbours[i].append(j)
+        neighbours[j].append(i)
     multiple = (Chem.BondType.DOUBLE, Chem.BondType.TRIPLE)
-    unsaturated = np.zeros(n_atoms, dtype=bool)
+    unsaturated = [False] * n_atoms
     for bond in all_bonds:
         if bond.GetBondType() not in multiple:
             continue
@@ -163,19 +168,18 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
                     f"{_atom_name(x)}: multiple bond to {_atom_name(y)} is not covered by the pi model")
         unsaturated[a.GetIdx()] = unsaturated[b.GetIdx()] = True
 
-    in_pi = unsaturated.copy()
-    for atom in all_atoms:
-        i = atom.GetIdx()
+    in_pi = list(unsaturated)
+    for i, atom in enumerate(all_atoms):
         if unsaturated[i] or not _is_donor(atom):
             continue
-        if any(unsaturated[nb.GetIdx()] for nb in atom.GetNeighbors()):
+        if any(unsaturated[j] for j in neighbours[i]):
             in_pi[i] = True
 
-    if not in_pi.any():
+    if not any(in_pi):
         raise NoPiSystemError("no pi-system (no conjugated multiple bonds)")
 
     # connected components of the pi graph
-    comp = -np.ones(n_atoms, dtype=int)
+    comp = [-1] * n_atoms
     n_comp = 0
     for start in range(n_atoms):
         if not in_pi[start] or comp[start] >= 0:
@@ -184,12 +188,12 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
         comp[start] = n_comp
         while stack:
             i = stack.pop()
-            for nb in all_atoms[i].GetNeighbors():
-                j = nb.GetIdx()
+            for j in neighbours[i]:
                 if in_pi[j] and comp[j] < 0:
                     comp[j] = n_comp
                     stack.append(j)
         n_comp += 1
+    comp = np.array(comp)
 
     systems = []
     for c in range(n_comp):
@@ -205,8 +209,8 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
                 raise UnsupportedError(
                     f"{_atom_name(a)} with formal charge {a.GetFormalCharge():+d} would hold {n} pi electrons")
         bonds, doubles = [], []
-        for b in all_bonds:
-            i, j = local.get(b.GetBeginAtomIdx()), local.get(b.GetEndAtomIdx())
+        for b, (bi, bj) in zip(all_bonds, ends):
+            i, j = local.get(bi), local.get(bj)
             if i is not None and j is not None:
                 bonds.append((min(i, j), max(i, j)))
                 if b.GetBondType() == Chem.BondType.DOUBLE:
