@@ -453,7 +453,9 @@ def _registry_set(name: str | None) -> param_registry.ParameterSet:
 def load_parameters(name_or_path: str | None) -> param_registry.ParameterSet:
     """:func:`ppp.model.params.load`, with registry names (and None, the default set) resolved once per
     process: resolving a name lists and stats the parameter folders (~0.4 ms, a tenth of a small
-    molecule's whole computation). File paths are resolved at every call, as before."""
+    molecule's whole computation). File paths are resolved at every call, as before. As with
+    ``params.load`` itself (which keeps each file it has read), a registry set added or edited on
+    disk while the process runs is seen by the next process."""
     if name_or_path is None or (os.sep not in name_or_path and "/" not in name_or_path
                                 and not name_or_path.endswith(".toml") and not os.path.exists(name_or_path)):
         return _registry_set(name_or_path)

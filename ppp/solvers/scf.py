@@ -83,7 +83,7 @@ def _fock_energy_numpy(core, gamma, dens):
 
 def _numpy_builder(gamma: np.ndarray):
     """(core, gamma, dens) -> (F, E) for one fixed gamma: the module-doc equations, with gamma / 2 and
-    the diagonal index prepared once (a few microseconds less per SCF iteration at dye size)."""
+    the diagonal stride prepared once (a few microseconds less per SCF iteration at dye size)."""
     half = 0.5 * gamma
     step = gamma.shape[0] + 1
 
@@ -147,7 +147,7 @@ class _DIIS:
 
     @property
     def focks(self) -> list[np.ndarray]:
-        return [self._f[k] for k in self.slots]
+        return [self._f[k].reshape(self._shape) for k in self.slots]
 
     @property
     def b(self) -> np.ndarray:
@@ -194,7 +194,7 @@ class _DIIS:
 
 
 def _bordered(n: int) -> np.ndarray:
-    """(n + 1, n + 1) matrix [[0, -1], [-1, 0]] whose upper-left n x n block receives B."""
+    """(n + 1, n + 1) template [[B, -1], [-1, 0]] of the DIIS equations; B (n x n) is written in later."""
     a = np.full((n + 1, n + 1), -1.0)
     a[-1, -1] = 0.0
     return a
