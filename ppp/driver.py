@@ -4,14 +4,16 @@
 """
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, replace
+from functools import lru_cache
 
 import numpy as np
 from rdkit import Chem
 
 from .analysis.timings import StageTimer, maybe_stage
 from .analysis.properties import (Configuration, GroundState, dominant_configurations, ground_state,
-                                  oscillator_strengths, polarization, transition_dipoles)
+                                  oscillator_strengths, polarizations, transition_dipoles)
 from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
 from .model import params as param_registry
 from .model import solvent as solvent_model
@@ -21,9 +23,9 @@ from .solvers import cis as cis_solver
 from .solvers import rpa
 from .solvers import scf as scf_solver
 from .solvers import stability
-from .solvers.guess import kekule_guess
+from .solvers.guess import atomic_start, kekule_guess
 from .solvers.threads import blas_threads
-from .structure.geometry import centre_coordinates
+from .structure.geometry import atom_positions, centre_coordinates
 from .structure.perceive import PiSystem, perceive
 from .structure.cavity import cavity_spheres
 from .structure.twist import embed_conformer, twist_factors
@@ -37,7 +39,8 @@ COORDINATE_SOURCES = ("depiction", "input", "conformer")
 #: Singlet response methods: Tamm-Dancoff CIS, or the random-phase approximation (ppp.solvers.rpa).
 RESPONSES = ("cis", "rpa")
 #: From this many centres on, the SCF starts from the Kekule structure (ppp.solvers.guess) and falls
-#: back to the core-Hamiltonian start; below, the other way round.
+#: back to the core-Hamiltonian start; below (and when there is no Kekule structure), it starts from
+#: superposed atoms (ppp.solvers.guess.atomic_start) and falls back to the Kekule structure.
 KEKULE_START_FROM = 60
 
 
@@ -108,7 +111,7 @@ class Options:
                 f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)  # slots: cheaper to create, dozens per molecule
 class State:
     """One excited state of one chromophore."""
 
@@ -237,21 +240,22 @@ class MoleculeResult:
 
 def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model: Model) -> tuple[State, ...]:
     n_occ = model.n_occ
-    if multiplicity == 1 and len(res.energies):
-        tdm = transition_dipoles(scf.mo_coeff, n_occ, res.amplitudes, model.coords)
-        f = oscillator_strengths(res.energies, tdm)
-    else:
-        tdm = np.zeros((len(res.energies), 3))
-        f = np.zeros(len(res.energies))
-    # RPA: weights X^2 - Y^2 (Z = X + Y gives the transition dipoles above)
+    k = len(res.energies)
+    # RPA: weights X^2 - Y^2 (Z = X + Y gives the transition dipoles below)
     confs = dominant_configurations(res.character_amplitudes() if isinstance(res, rpa.RPAResult)
                                     else res.amplitudes, n_occ)
-    out = []
-    for k, e in enumerate(res.energies):
-        angle, label = polarization(tdm[k]) if multiplicity == 1 else (None, "-")
-        out.append(State(multiplicity, k + 1, chrom, float(e), float(f[k]), tuple(float(x) for x in tdm[k]),
-                         angle, label, confs[k]))
-    return tuple(out)
+    energies = res.energies.tolist()
+    if multiplicity == 1 and k:
+        tdm = transition_dipoles(scf.mo_coeff, n_occ, res.amplitudes, model.coords)
+        f = oscillator_strengths(res.energies, tdm).tolist()
+        pol = polarizations(tdm)
+        dips = [tuple(row) for row in tdm.tolist()]
+    else:
+        f = [0.0] * k
+        pol = [(None, "-")] * k
+        dips = [(0.0, 0.0, 0.0)] * k
+    return tuple(State(multiplicity, n + 1, chrom, energies[n], f[n], dips[n], pol[n][0], pol[n][1], confs[n])
+                 for n in range(k))
 
 
 def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0: np.ndarray | None = None,
@@ -261,17 +265,23 @@ def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0
 
     dens0 : optional (N, N) starting density (e.g. the converged density of a nearby parameter set)
     dens_guess : optional Kekule-structure start density, used first from ``KEKULE_START_FROM`` centres on
-        and as a fallback below
+        and as a fallback below (where the superposed-atoms start comes first)
     Returns (model, scf): the model carries the final core Hamiltonian. Raises ConvergenceError.
     """
-    kw = dict(max_iter=options.max_iter, alt_dens0=dens_guess, alt_first=model.n_centres >= KEKULE_START_FROM)
+    kekule_first = model.n_centres >= KEKULE_START_FROM
+    kw = dict(max_iter=options.max_iter, alt_dens0=dens_guess, alt_first=kekule_first)
+    if dens0 is None and not (kekule_first and dens_guess is not None):
+        # superposed-atoms start (ppp.solvers.guess.atomic_start): fewer iterations than the core start
+        dens0 = atomic_start(model.core, model.gamma, model.core_charges, model.n_electrons, model.n_occ)
     rf = model.reaction
     if model.bond_order_beta is not None or rf is not None:
         settings = model.bond_order_beta or variable_beta.BondOrderBeta(pairs=())
         try:
             vb = variable_beta.iterate(model.core, model.gamma, model.n_occ, model.types, model.bonds,
                                        settings, scf_solver.kernel, dens0=dens0, scf_iterate=scf_solver.iterate,
-                                       diag_update=None if rf is None else rf.potential, **kw)
+                                       diag_update=None if rf is None else rf.potential,
+                                       scf_finish=scf_solver.finish,
+                                       scf_finish_tol=(scf_solver.CONV_TOL_ENERGY, scf_solver.CONV_TOL_GRAD), **kw)
         except ConvergenceError as err:
             raise ConvergenceError(f"chromophore {index + 1} ({model.n_centres} centres): {err.reason}") from None
         e_rf = 0.0
@@ -427,7 +437,7 @@ def _without_hydrogens(mol: Chem.Mol) -> Chem.Mol:
     """Heavy-atom copy of a molecule with explicit hydrogens (e.g. from an SDF record); the hydrogen
     counts move onto the heavy atoms (without the property-cache update they would read 0, and the
     pi-system perception would see radicals)."""
-    if not any(a.GetAtomicNum() == 1 for a in mol.GetAtoms()):
+    if mol.GetNumAtoms() == mol.GetNumHeavyAtoms():
         return mol
     work = Chem.RemoveHs(mol, sanitize=False)
     work.UpdatePropertyCache(strict=False)
@@ -460,7 +470,7 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     if with_cavity is None:
         with_cavity = options.solvent is not None and not solvent_model.load(options.solvent).is_vacuum
     if bond_length is None:
-        bond_length = param_registry.load(options.parameters).bond_length_angstrom
+        bond_length = load_parameters(options.parameters).bond_length_angstrom
     with maybe_stage(timer, "perception"):
         work = _without_hydrogens(mol)
         systems = perceive(work)
@@ -484,10 +494,13 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     source = "depiction" if options.coordinates == "conformer" else options.coordinates
     all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
     out = []
+    positions = None  # atom positions, made once and shared by the chromophores
     for sys_ in systems:
         with maybe_stage(timer, "coordinates"):
+            if positions is None:
+                positions = atom_positions(work, source)
             coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
-                                        all_pi_bonds=all_bonds)
+                                        all_pi_bonds=all_bonds, positions=positions)
             twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
             cav = (cavity_spheres(work, sys_.atom_indices, coords, source, bond_length, all_bonds)
                    if with_cavity else None)
@@ -518,12 +531,29 @@ def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer 
     """
     if pset is None:
         with maybe_stage(timer, "parameters"):
-            pset = param_registry.load(options.parameters)
+            pset = load_parameters(options.parameters)
     out = []
     for prep in prepare(mol, options, pset.bond_length_angstrom, timer):
         with maybe_stage(timer, "model (gamma, h)"):
             out.append((prep.system, model_for(prep, pset, options)))
     return tuple(out)
+
+
+@lru_cache(maxsize=16)
+def _registry_set(name: str | None) -> param_registry.ParameterSet:
+    return param_registry.load(name)
+
+
+def load_parameters(name_or_path: str | None) -> param_registry.ParameterSet:
+    """:func:`ppp.model.params.load`, with registry names (and None, the default set) resolved once per
+    process: resolving a name lists and stats the parameter folders (~0.4 ms, a tenth of a small
+    molecule's whole computation). File paths are resolved at every call, as before. As with
+    ``params.load`` itself (which keeps each file it has read), a registry set added or edited on
+    disk while the process runs is seen by the next process."""
+    if name_or_path is None or (os.sep not in name_or_path and "/" not in name_or_path
+                                and not name_or_path.endswith(".toml") and not os.path.exists(name_or_path)):
+        return _registry_set(name_or_path)
+    return param_registry.load(name_or_path)
 
 
 def compute(structure: str | Chem.Mol, name: str | None = None, options: Options | None = None,
@@ -559,7 +589,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
                 smiles_in = Chem.MolToSmiles(mol)
             canonical = Chem.MolToSmiles(_without_hydrogens(mol))
         with maybe_stage(timer, "parameters"):
-            pset = param_registry.load(opts.parameters)
+            pset = load_parameters(opts.parameters)
         chroms = []
         for k, (sys_, model) in enumerate(build_models(mol, opts, timer, pset=pset)):
             with maybe_stage(timer, "perception"):

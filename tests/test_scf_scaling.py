@@ -135,7 +135,7 @@ def test_vectorised_dominant_configurations_equal_a_per_root_sort():
         return out
 
     rng = np.random.default_rng(31)
-    for shape in [(5, 3, 4), (7, 10, 12), (3, 1, 1), (4, 2, 30)]:
+    for shape in [(5, 3, 4), (7, 10, 12), (3, 1, 1), (4, 2, 30), (6, 20, 17), (2, 30, 30)]:
         x = rng.standard_normal(shape)
         x[0] = 0.0
         x[0, 0, 0] = 1.0  # a pure configuration: one entry only

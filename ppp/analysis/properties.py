@@ -7,6 +7,7 @@ dipole matrix element between orbitals p and q is  <p|r|q> = sum_mu C_mu,p C_mu,
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -64,6 +65,27 @@ def polarization(tdm: np.ndarray, threshold: float = 1e-6) -> tuple[float | None
     return angle, "mixed"
 
 
+def polarizations(tdm: np.ndarray, threshold: float = 1e-6) -> list[tuple[float | None, str]]:
+    """:func:`polarization` of each row of ``tdm`` (k, 3), e*A, evaluated for all rows at once."""
+    tdm = np.asarray(tdm, dtype=float).reshape(-1, 3)
+    norm = np.sqrt(np.sum(tdm * tdm, axis=1))
+    in_plane = np.hypot(tdm[:, 0], tdm[:, 1])
+    angle = np.degrees(np.arctan2(tdm[:, 1], tdm[:, 0])) % 180.0
+    out = []
+    for nrm, z, ip, ang in zip(norm.tolist(), np.abs(tdm[:, 2]).tolist(), in_plane.tolist(), angle.tolist()):
+        if nrm < threshold:
+            out.append((None, "-"))
+        elif z > ip:
+            out.append((None, "out-of-plane"))
+        elif min(ang, 180.0 - ang) <= 20.0:
+            out.append((ang, "long"))
+        elif abs(ang - 90.0) <= 20.0:
+            out.append((ang, "short"))
+        else:
+            out.append((ang, "mixed"))
+    return out
+
+
 def orbital_label(p: int, n_occ: int) -> str:
     """HOMO, HOMO-1, ..., LUMO, LUMO+1, ... for 0-based orbital index p."""
     if p < n_occ:
@@ -73,7 +95,7 @@ def orbital_label(p: int, n_occ: int) -> str:
     return "LUMO" if k == 0 else f"LUMO+{k}"
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)  # slots: cheaper to create, dozens per molecule
 class Configuration:
     """One singly excited configuration i -> a and its weight |X_ia|^2 in a state."""
 
@@ -98,24 +120,28 @@ def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: floa
     n_vir = amplitudes.shape[2]
     w = (amplitudes * amplitudes).reshape(k, -1)
     m = min(max_count, w.shape[1])
-    if w.shape[1] > 4 * m:  # only the largest few are needed: partial selection, O(n) per root
+    rows = np.arange(k)[:, None]
+    if w.shape[1] > 256:  # only the largest few are needed: partial selection, O(n) per root
         top = np.sort(np.argpartition(-w, m - 1, axis=1)[:, :m], axis=1)
-    else:
-        top = np.broadcast_to(np.arange(w.shape[1]), w.shape)
-    vals = np.take_along_axis(w, top, axis=1)
-    # by weight, ties by configuration index (as a stable sort of the whole row would give)
-    order = np.take_along_axis(top, np.argsort(-vals, axis=1, kind="stable"), axis=1)[:, :m]
-    weights = np.take_along_axis(w, order, axis=1)
+        # by weight, ties by configuration index (as a stable sort of the whole row would give)
+        order = top[rows, np.argsort(-w[rows, top], axis=1, kind="stable")]
+    else:  # short rows: one stable sort of each whole row is cheaper than the selection's calls
+        order = np.argsort(-w, axis=1, kind="stable")[:, :m]
+    weights = w[rows, order]
+    occ, vir = np.divmod(order, n_vir)
     out = []
-    for r in range(k):
+    for o_row, v_row, wt_row in zip(occ.tolist(), (vir + n_occ).tolist(), weights.tolist()):
         confs = []
-        for idx, wt in zip(order[r].tolist(), weights[r].tolist()):
+        for i, a, wt in zip(o_row, v_row, wt_row):
             if wt < min_weight and confs:
                 break
-            i, a = divmod(idx, n_vir)
-            confs.append(Configuration(i, n_occ + a, wt, orbital_label(i, n_occ), orbital_label(n_occ + a, n_occ)))
+            confs.append(Configuration(i, a, wt, _label(i, n_occ), _label(a, n_occ)))
         out.append(tuple(confs))
     return out
+
+
+#: orbital_label with its (few hundred distinct) answers kept: state records ask for the same ones
+_label = lru_cache(maxsize=4096)(orbital_label)
 
 
 @dataclass(frozen=True)

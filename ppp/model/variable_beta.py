@@ -21,6 +21,13 @@ The scheme (each step a published relation):
    than ``tol_ev``. Only the resonance integrals follow the bond orders; the coordinates (and so gamma)
    stay those of the idealised geometry (common practice in variable-beta PPP work).
 
+How the fixed point is reached: given an SCF loop that accepts a density-dependent core (``scf_iterate``),
+the betas are rebuilt from the density at every SCF iteration, inside one DIIS history, and the run
+stops only when |FP - PF| and the energy change meet the full SCF thresholds *and* the last beta change
+is below ``tol_ev``. The density is then an SCF solution of its own final betas, so it is the result
+(no confirming cycle). Only when that joint run fails does the cycle of step 4 run (one SCF per beta
+update, loosely converged, then a full-tolerance SCF on the final betas).
+
 Only bonds whose type pair is listed in the settings are varied (by default C-C); the others keep their
 fixed beta (and any twist factor, which multiplies beta_ref).
 """
@@ -98,6 +105,22 @@ def beta_factor(length, settings: BondOrderBeta):
     return np.exp(-(r - settings.reference_length) / settings.decay_length)
 
 
+def _factor_function(settings: BondOrderBeta):
+    """Function p -> beta(r(p)) / beta(r_ref) (as :func:`beta_factor` of :func:`bond_length`) with the
+    constants of the settings evaluated once, for the per-iteration core update."""
+    a, b = settings.length_intercept, settings.length_slope
+    if settings.law == "overlap":
+        k = settings.slater_exponent / BOHR_ANGSTROM
+        s_ref = float(slater_pi_overlap(settings.reference_length, settings.slater_exponent))
+
+        def factor(order):
+            rho = k * (a - b * order)
+            return np.exp(-rho) * (1.0 + rho * (1.0 + rho * (0.4 + rho / 15.0))) / s_ref
+        return factor
+    r_ref, delta = settings.reference_length, settings.decay_length
+    return lambda order: np.exp(-((a - b * order) - r_ref) / delta)
+
+
 def variable_bonds(types, bonds: np.ndarray, settings: BondOrderBeta) -> np.ndarray:
     """Boolean mask (M,) of the bonds whose beta follows the bond order."""
     wanted = {tuple(sorted(p)) for p in settings.pairs}
@@ -124,7 +147,8 @@ class VariableBetaResult:
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.ndarray,
             settings: BondOrderBeta, scf_kernel, dens0: np.ndarray | None = None,
-            scf_iterate=None, diag_update=None, **scf_kwargs) -> VariableBetaResult:
+            scf_iterate=None, diag_update=None, scf_finish=None, scf_finish_tol=(1e-11, 1e-9),
+            **scf_kwargs) -> VariableBetaResult:
     """Iterate SCF -> bond orders -> lengths -> beta until beta is self-consistent.
 
     Parameters
@@ -143,6 +167,10 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
         density-dependent one-electron term such as a solvent reaction field,
         :meth:`ppp.model.solvent.ReactionField.potential`), iterated to self-consistency together with the
         betas. With it, the settings may list no varied bonds (fixed beta, reaction field only).
+    scf_finish : optional ``(core, gamma, n_occ, dens, converged, iterations, strategy) -> SCFResult``
+        (``ppp.solvers.scf.finish``). With it, a joint run that converges to the full SCF tolerance
+        (``conv_tol``/``conv_tol_grad`` of ``scf_kwargs``, else ``scf_finish_tol``) with a last change
+        of the core below ``tol_ev`` is the result (cycles = 1): no confirming SCF cycles.
 
     Raises ConvergenceError when an SCF fails or the cycle does not settle within ``max_cycles``.
     """
@@ -159,14 +187,21 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
         core[i, j] = core[j, i] = beta_ref * beta_factor(bond_length(dens0[i, j], settings), settings)
     if dens0 is not None and diag_update is not None:
         np.fill_diagonal(core, diag0 + diag_update(dens0))
+    if not varies:  # no beta follows the bond orders and no reaction field: one SCF on the fixed core
+        scf = scf_kernel(core, gamma, n_occ, dens0=dens, **scf_kwargs)
+        if not scf.converged:
+            raise ConvergenceError("SCF did not converge")
+        orders = scf.dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)
+        return VariableBetaResult(core, scf, orders, lengths, 1)
     # inner cycles converge the SCF loosely (the betas move anyway); the last SCF uses full tolerance
     loose = dict(scf_kwargs, conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD)
-    if scf_iterate is not None and varies:
+    if scf_iterate is not None:
         core0 = core.copy()
+        factor = _factor_function(settings)
 
         def core_of(d):
             c = core0.copy()
-            c[i, j] = c[j, i] = beta_ref * beta_factor(bond_length(d[i, j], settings), settings)
+            c[i, j] = c[j, i] = beta_ref * factor(d[i, j])
             if diag_update is not None:
                 np.fill_diagonal(c, diag0 + diag_update(d))
             return c
@@ -179,8 +214,21 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
             else:
                 c = np.linalg.eigh(core)[1][:, :n_occ]
                 start = 2.0 * c @ c.T
-        ok, _, joint = scf_iterate(core, gamma, n_occ, start, max_iter=scf_kwargs.get("max_iter", 100),
-                                   conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD, core_update=core_of)
+        # One SCF run in which the core follows the density at every iteration, to the full SCF
+        # tolerance and with the core change between the last two iterations below tol_ev: its density
+        # is then an SCF solution of the fixed model core_of(P) (same |FP - PF| test as a separate SCF
+        # on that core) and the core is self-consistent, so no confirming cycle is needed.
+        full = dict(conv_tol=scf_kwargs.get("conv_tol", scf_finish_tol[0]),
+                    conv_tol_grad=scf_kwargs.get("conv_tol_grad", scf_finish_tol[1]))
+        ok, its, joint = scf_iterate(core, gamma, n_occ, start, max_iter=scf_kwargs.get("max_iter", 100),
+                                     core_update=core_of, core_tol=settings.tol_ev, **full)
+        if ok and scf_finish is not None:
+            core = core_of(joint)
+            scf = scf_finish(core, gamma, n_occ, joint, True, its, "diis")
+            if scf.converged:
+                orders = scf.dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)
+                lengths[mask] = bond_length(orders[mask], settings)
+                return VariableBetaResult(core, scf, orders, lengths, 1)
         if ok:  # the cycle below now only has to confirm the fixed point
             dens = joint
             core = core_of(joint)
@@ -197,11 +245,6 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
                 f"(last |FP-PF| = {scf.max_error:.1e} eV)")
         dens = scf.dens
         orders = dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)
-        if not varies:
-            scf = scf_kernel(core, gamma, n_occ, dens0=dens, **scf_kwargs)
-            if not scf.converged:
-                raise ConvergenceError("SCF did not converge")
-            return VariableBetaResult(core, scf, orders, lengths, cycle + 1)
         r = bond_length(orders[mask], settings)
         new = beta_ref * beta_factor(r, settings)
         change = float(np.max(np.abs(new - core[i, j]), initial=0.0))
@@ -212,11 +255,11 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
             np.fill_diagonal(core, new_diag)
         lengths[mask] = r
         if change < settings.tol_ev:
-            # one more SCF on the final betas so that orbitals and betas belong together
+            # one more SCF on the final core so that orbitals and core belong together
             scf = scf_kernel(core, gamma, n_occ, dens0=dens, **scf_kwargs)
             if not scf.converged:
                 raise ConvergenceError("SCF did not converge on the final bond-order betas")
-            orders = scf.dens[bonds[:, 0], bonds[:, 1]].copy()
+            orders = scf.dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)
             return VariableBetaResult(core, scf, orders, lengths, cycle + 1)
     raise ConvergenceError(
         f"bond-order beta iteration did not settle in {max_cycles} cycles "
