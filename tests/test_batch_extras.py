@@ -89,3 +89,18 @@ def test_cli_batch_errors_are_one_line(tmp_path, cli):
         assert code == 1 and "--shard" in err and len(err.strip().splitlines()) == 1
     code, _, err = cli("export", tmp_path / "nothing.h5", "-o", tmp_path / "x.csv")
     assert code == 1 and "does not exist" in err
+
+
+def test_key_index_behaves_like_a_first_wins_dict_across_merges():
+    """The writer's compact duplicate index (ppp.batch.store.KeyIndex) against a plain dict, with merges
+    forced every 7 keys and repeated keys (fixed seed)."""
+    from ppp.batch.store import KeyIndex
+    rng = np.random.default_rng(7)
+    keys = rng.integers(0, 2**64 - 1, size=300, dtype=np.uint64).tolist()
+    keys += keys[::5]  # repeats: the first source must win
+    idx, ref = KeyIndex(merge_at=7), {}
+    for src, h in enumerate(keys):
+        assert idx.get(h) == ref.get(h)
+        assert idx.setdefault(h, src) == ref.setdefault(h, src)
+    assert len(idx) == len(ref)
+    assert idx.get(12345) is None

@@ -40,6 +40,52 @@ def _key_hash(key: str) -> int:
     return int.from_bytes(hashlib.blake2b(key.encode(), digest_size=8).digest(), "little")
 
 
+class KeyIndex:
+    """Key hash -> source number of its first row, for duplicate detection over a whole results file.
+
+    16 bytes per key in sorted numpy arrays (a Python dict would take about 150), so the writer's memory
+    stays nearly flat up to millions of molecules: new keys go to a small dict that is merged into the
+    sorted arrays when it reaches ``merge_at`` entries.
+    """
+
+    def __init__(self, merge_at: int = 65536):
+        self.hashes = np.zeros(0, np.uint64)
+        self.sources = np.zeros(0, np.int64)
+        self.recent: dict[int, int] = {}
+        self.merge_at = merge_at
+
+    def __len__(self) -> int:
+        return len(self.hashes) + len(self.recent)
+
+    def get(self, h: int) -> int | None:
+        src = self.recent.get(h)
+        if src is not None or not len(self.hashes):
+            return src
+        pos = int(np.searchsorted(self.hashes, np.uint64(h)))
+        if pos < len(self.hashes) and int(self.hashes[pos]) == h:
+            return int(self.sources[pos])
+        return None
+
+    def setdefault(self, h: int, source: int) -> int:
+        first = self.get(h)
+        if first is not None:
+            return first
+        self.recent[h] = source
+        if len(self.recent) >= self.merge_at:
+            self._merge()
+        return source
+
+    def __setitem__(self, h: int, source: int) -> None:
+        self.setdefault(h, source)
+
+    def _merge(self) -> None:
+        h = np.concatenate([self.hashes, np.fromiter(self.recent.keys(), np.uint64, len(self.recent))])
+        s = np.concatenate([self.sources, np.fromiter(self.recent.values(), np.int64, len(self.recent))])
+        order = np.argsort(h, kind="stable")
+        self.hashes, self.sources = h[order], s[order]
+        self.recent = {}
+
+
 def _create_datasets(h5: h5py.File, heavy: bool) -> None:
     def make(path: str, dtype, shape: tuple, chunk_rows: int):
         h5.create_dataset(path, shape=(0,) + shape, maxshape=(None,) + shape, dtype=dtype,
@@ -93,7 +139,7 @@ class ResultsWriter:
         self.log = h5["commits"]
         self.sizes = {p: self.ds[p].shape[0] for p in self.paths}
         self.blocks = self.log.shape[0]
-        self.seen: dict[int, int] = {}  # key hash -> source number of its first row
+        self.seen = KeyIndex()  # key hash -> source number of its first row
         self.pending: list[ChunkResult] = []
         self.pending_rows = 0
         self.rows_added = 0
