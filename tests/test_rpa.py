@@ -13,8 +13,7 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
-from pyscf import lib, tdscf
-from threadpoolctl import threadpool_limits
+from pyscf import tdscf
 
 import ppp
 from ppp.driver import Options, build_models, solve_model
@@ -23,21 +22,12 @@ from ppp.solvers import cis as cis_solver
 from ppp.solvers import rpa
 from ppp.structure.readers import mol_from_smiles
 
-from test_reference_pyscf import pyscf_rhf, zdo_oscillator_strengths
+from test_reference_pyscf import _one_thread, pyscf_rhf, zdo_oscillator_strengths  # noqa: F401 (autouse fixture)
 
 #: agreement demanded with PySCF, eV and dimensionless (as for CIS in issue 2)
 TOL_EV = 1e-6
 TOL_F = 1e-6
 N_ROOTS = 8
-
-
-@pytest.fixture(autouse=True, scope="module")
-def _one_thread():
-    old = lib.num_threads()
-    lib.num_threads(1)
-    with threadpool_limits(limits=1):
-        yield
-    lib.num_threads(old)
 
 
 MOLECULES = {
