@@ -64,7 +64,7 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
         np.negative(a, out=a)
     del j_int
     diag = (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
-    a[np.diag_indices_from(a)] += diag
+    a.flat[::o * v + 1] += diag  # the diagonal as a strided view (no index arrays)
     return a
 
 
@@ -127,11 +127,7 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
         a = cis_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity)
         # a is symmetric and C-ordered, so a.T is the same matrix in the Fortran order LAPACK works in:
         # no copy of the largest array; the finiteness check follows on the (few) results instead
-        if k_solve < o * v:
-            w, x = scipy.linalg.eigh(a.T, subset_by_index=[0, k_solve - 1], driver="evr", overwrite_a=True,
-                                     check_finite=False)
-        else:
-            w, x = scipy.linalg.eigh(a.T, overwrite_a=True, check_finite=False)
+        w, x = _lowest_eigenpairs(a.T, k_solve)
         del a
         if not (np.all(np.isfinite(w)) and np.all(np.isfinite(x))):
             raise ConvergenceError("dense CIS eigensolver returned non-finite values")
@@ -144,6 +140,30 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     sign = np.sign(flat[np.arange(k), np.argmax(np.abs(flat), axis=1)])
     x = x * sign[:, None, None]
     return CISResult(multiplicity, w, x)
+
+
+#: Up to this dimension the full divide-and-conquer eigensolver (dsyevd) is cheaper than the subset
+#: solver (dsyevr) for ~10 roots (measured: 97 vs 127 us at 35, 456 vs 391 us at 80 configurations).
+FULL_EIGEN_MAX = 64
+
+
+def _lowest_eigenpairs(a: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest k eigenpairs (w (k,), x (n, k)) of the symmetric Fortran-ordered matrix ``a``, which is
+    overwritten. LAPACK is called directly: for the small matrices of dye-sized molecules the generic
+    scipy.linalg.eigh wrapper costs as much as the solve."""
+    n = a.shape[0]
+    if n <= FULL_EIGEN_MAX or k >= n:
+        w, x, info = scipy.linalg.lapack.dsyevd(a, compute_v=1, lower=0, overwrite_a=1)
+        w, x = w[:k], x[:, :k]
+    else:
+        w, x, m, _, info = scipy.linalg.lapack.dsyevr(a, compute_v=1, range="I", il=1, iu=k, lower=0,
+                                                       overwrite_a=1)
+        if info == 0 and m != k:
+            info = -1
+        w, x = w[:k], x[:, :k]
+    if info != 0:
+        raise ConvergenceError(f"dense CIS eigensolver failed (LAPACK info {info})")
+    return w, x
 
 
 def align_degenerate(energies: np.ndarray, amplitudes: np.ndarray, mo_coeff: np.ndarray, n_occ: int,
