@@ -323,7 +323,7 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
     return replace(res, energies=e[order], amplitudes=res.amplitudes[order])
 
 
-def _singlets(scf, model, options, timer) -> cis_solver.CISResult | rpa.RPAResult:
+def singlet_roots(scf, model, options, timer=None) -> cis_solver.CISResult | rpa.RPAResult:
     """Singlets by the chosen response method on the SCF orbitals, without the solvent's state-specific
     term (the stability tests look at these roots; :func:`solvent_corrected` is applied afterwards).
     An RPA that finds the reference unstable falls back to CIS, which then decides (through a
@@ -344,7 +344,7 @@ def _unstable(sing: cis_solver.CISResult) -> bool:
     return bool(len(sing.energies) and sing.energies[0] <= 0.0)
 
 
-def _seek_stable(model0: Model, model: Model, scf, sing, options, index, timer):
+def seek_stable(model0: Model, model: Model, scf, sing, options, index, timer=None):
     """Look for a stable closed-shell solution when the lowest CIS singlet is not positive.
 
     Fixed beta: follow the instability downhill along real orbital rotations (Seeger & Pople 1977).
@@ -360,7 +360,7 @@ def _seek_stable(model0: Model, model: Model, scf, sing, options, index, timer):
     if model0.bond_order_beta is None and model0.reaction is None:
         if stable is not None and stable is not scf:
             scf = stable
-            sing = _singlets(scf, model, options, timer)
+            sing = singlet_roots(scf, model, options, timer)
         return model, scf, sing
     starts = [stable.dens] if stable is not None and stable is not scf else []
     with maybe_stage(timer, "stability following"):
@@ -375,7 +375,7 @@ def _seek_stable(model0: Model, model: Model, scf, sing, options, index, timer):
                 m2, s2 = ground_scf(model0, options, index, dens0=dens0)
         except ConvergenceError:
             continue
-        sing2 = _singlets(s2, m2, options, timer)
+        sing2 = singlet_roots(s2, m2, options, timer)
         if not _unstable(sing2):
             return m2, s2, sing2
     return model, scf, sing
@@ -385,10 +385,10 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
     model0 = model
     with maybe_stage(timer, "SCF"):
         model, scf = ground_scf(model0, options, index, dens_guess=dens_guess)
-    sing = _singlets(scf, model, options, timer)
+    sing = singlet_roots(scf, model, options, timer)
     if _unstable(sing):
         # the SCF may sit on a saddle point: look for a lower, stable closed-shell solution
-        model, scf, sing = _seek_stable(model0, model, scf, sing, options, index, timer)
+        model, scf, sing = seek_stable(model0, model, scf, sing, options, index, timer)
     # A non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus 1967
     # instability). Singlet instability that cannot be followed to a minimum: the closed-shell ground
     # state itself is wrong (biradical character), so the molecule is refused. Triplet instability

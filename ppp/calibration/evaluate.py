@@ -11,9 +11,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..analysis.properties import oscillator_strengths, transition_dipoles
-from ..driver import Options, Prepared, ground_scf, model_for, prepare, solvent_corrected
-from ..driver import _seek_stable as seek_stable
-from ..driver import _singlets as singlet_roots
+from ..driver import (Options, Prepared, ground_scf, model_for, prepare, seek_stable, singlet_roots,
+                      solvent_corrected)
 from ..errors import PPPError
 from ..model.params import ParameterSet
 from ..model.solvent import reference_solvent
