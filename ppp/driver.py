@@ -103,12 +103,17 @@ class Options:
             solvent_model.load(self.solvent)  # InputError naming the valid solvents
         if self.response not in RESPONSES:
             raise InputError(f"unknown response method '{self.response}'; valid: {', '.join(RESPONSES)}")
-        if self.response == "rpa" and self.solvent is not None and not solvent_model.load(self.solvent).is_vacuum:
+        if self.response == "rpa" and self.in_solvent:
             raise InputError("the solvent model's state-specific term is built on CIS states: use response "
                              "'cis' with a solvent")
         if self.gamma is not None and self.gamma not in param_registry.GAMMA_FORMULAS:
             raise InputError(
                 f"unknown gamma formula '{self.gamma}'; valid: {', '.join(param_registry.GAMMA_FORMULAS)}")
+
+    @property
+    def in_solvent(self) -> bool:
+        """True when a solvent other than the gas phase is asked for (its reaction field applies)."""
+        return self.solvent is not None and not solvent_model.load(self.solvent).is_vacuum
 
 
 @dataclass(frozen=True, slots=True)  # slots: cheaper to create, dozens per molecule
@@ -416,13 +421,13 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
     if len(trip.energies) and trip.energies[0] <= 0.0:
         notes.append(f"triplet instability of the closed-shell reference (lowest CIS triplet "
                      f"{trip.energies[0]:.3f} eV <= 0): triplet energies not reported")
-        trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
+        trip = _no_states(trip)
     elif model.reaction is not None and len(trip.energies):
         trip = solvent_corrected(trip, scf, model)
         if trip.energies[0] <= 0.0:
             notes.append(f"the solvent's state-specific term puts the lowest triplet at {trip.energies[0]:.3f} "
                          f"eV <= 0 (first-order solvent treatment breaks down): triplet energies not reported")
-            trip = cis_solver.CISResult(3, np.zeros(0), np.zeros((0,) + trip.amplitudes.shape[1:]))
+            trip = _no_states(trip)
     with maybe_stage(timer, "properties"):
         return ChromophoreResult(
             index=index,
@@ -431,6 +436,11 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
             singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
             singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
         )
+
+
+def _no_states(res: cis_solver.CISResult) -> cis_solver.CISResult:
+    """The same multiplicity with no roots (states that must not be reported)."""
+    return cis_solver.CISResult(res.multiplicity, np.zeros(0), np.zeros((0,) + res.amplitudes.shape[1:]))
 
 
 def _without_hydrogens(mol: Chem.Mol) -> Chem.Mol:
@@ -468,7 +478,7 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     names a solvent other than the gas phase).
     """
     if with_cavity is None:
-        with_cavity = options.solvent is not None and not solvent_model.load(options.solvent).is_vacuum
+        with_cavity = options.in_solvent
     if bond_length is None:
         bond_length = load_parameters(options.parameters).bond_length_angstrom
     with maybe_stage(timer, "perception"):
@@ -516,11 +526,11 @@ def model_for(prep: Prepared, pset: param_registry.ParameterSet, options: Option
     settings = (pset.bond_order_beta or variable_beta.BondOrderBeta()) if use_vb else None
     model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, prep.coords, pset,
                         options.gamma, atom_labels=labels, twist_factors=prep.twist, bond_order_beta=settings)
-    solv = solvent_model.load(options.solvent) if options.solvent is not None else None
-    if solv is None or solv.is_vacuum:
+    if not options.in_solvent:
         return model
-    return replace(model, reaction=solvent_model.reaction_field(solv, prep.coords, sys_.types,
-                                                                sys_.core_charges, sys_.bonds, prep.cavity))
+    field = solvent_model.reaction_field(solvent_model.load(options.solvent), prep.coords, sys_.types,
+                                         sys_.core_charges, sys_.bonds, prep.cavity)
+    return replace(model, reaction=field)
 
 
 def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer | None = None,

@@ -75,9 +75,6 @@ class KeyIndex:
             self._merge()
         return source
 
-    def __setitem__(self, h: int, source: int) -> None:
-        self.setdefault(h, source)
-
     def _merge(self) -> None:
         h = np.concatenate([self.hashes, np.fromiter(self.recent.keys(), np.uint64, len(self.recent))])
         s = np.concatenate([self.sources, np.fromiter(self.recent.values(), np.int64, len(self.recent))])
@@ -261,7 +258,7 @@ class ResultsWriter:
             first = self.seen.get(h)
             if first is None:
                 if not kind:
-                    self.seen[h] = int(source[i])
+                    self.seen.setdefault(h, int(source[i]))
                 continue
             # (a row already marked duplicate, e.g. in a shard file, gets its message renewed so that it
             # names the first occurrence over the whole input)

@@ -64,13 +64,11 @@ def for_result(result, state=None) -> BandUncertainty | None:
     state = state if state is not None else result.first_bright
     if state is None:
         return None
-    solvent = getattr(result.options, "solvent", None)
-    in_solvent = solvent is not None and solvent.strip().lower() not in ("gas", "vacuum", "gas phase", "none")
     try:
         pset = param_registry.load(result.options.parameters)
         cls = classify_smiles(result.canonical_smiles)
     except PPPError:
         return None
-    if in_solvent != (measured_with(pset) == "reference"):
+    if result.options.in_solvent != (measured_with(pset) == "reference"):
         return None  # the class errors were measured the other way (gas phase / solvent): none applies
-    return band_uncertainty(state.energy_ev, cls, pset, getattr(result.options, "response", "cis"))
+    return band_uncertainty(state.energy_ev, cls, pset, result.options.response)

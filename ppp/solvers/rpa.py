@@ -127,13 +127,16 @@ def dense(mo_energy, mo_coeff, gamma, n_occ, n_states):
     Returns (w (k,) eV, Z (k, o*v), T (k, o*v)) with Z_k . T_l = delta_kl."""
     n = mo_coeff.shape[0]
     o, v = n_occ, n - n_occ
-    a = cis_solver.cis_matrix(mo_energy, mo_coeff, gamma, n_occ, 1)
+    apb = cis_solver.cis_matrix(mo_energy, mo_coeff, gamma, n_occ, 1)  # A, then A + B in place
     b = b_matrix(mo_coeff, gamma, n_occ)
+    amb = apb - b
+    apb += b
+    del b
     try:
-        chol = scipy.linalg.cholesky(a - b, lower=True)
+        chol = scipy.linalg.cholesky(amb, lower=True, overwrite_a=True)
     except np.linalg.LinAlgError:
         raise RPAInstabilityError("A - B is not positive definite (unstable closed-shell reference)") from None
-    m = chol.T @ (a + b) @ chol
+    m = chol.T @ apb @ chol
     k = min(n_states, o * v)
     if k < o * v:
         w2, u = scipy.linalg.eigh(m, subset_by_index=[0, k - 1], driver="evr")
@@ -142,7 +145,7 @@ def dense(mo_energy, mo_coeff, gamma, n_occ, n_states):
     _check_lowest(w2[0])
     w = np.sqrt(w2)
     z = (chol @ u / np.sqrt(w)).T                           # (k, o*v), Z.T = 1
-    t = ((a + b) @ z.T).T / w[:, None]
+    t = (apb @ z.T).T / w[:, None]
     return w, z, t
 
 

@@ -17,6 +17,7 @@ import scipy.linalg
 
 from . import cis as cis_solver
 from . import scf as scf_solver
+from .rpa import b_matrix  # the same B block as the random-phase approximation
 
 #: Largest orbital-rotation space (n_occ * n_vir) for which the dense Hessian is built.
 MAX_DENSE_ROTATIONS = 4000
@@ -27,13 +28,7 @@ def real_hessian(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray,
 
     A is the singlet CIS matrix; B_ia,jb = 2 (ia|jb) - (ib|ja).
     """
-    a = cis_solver.cis_matrix(mo_energy, mo_coeff, gamma, n_occ, 1)
-    co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
-    o, v = co.shape[1], cv.shape[1]
-    ov = cis_solver.pair_products(co, cv)
-    k = (ov.T @ gamma @ ov).reshape(o, v, o, v)              # (ia|jb) as [i, a, j, b]
-    b = 2.0 * k - k.transpose(0, 3, 2, 1)                    # 2 (ia|jb) - (ib|ja)
-    return a + b.reshape(o * v, o * v)
+    return cis_solver.cis_matrix(mo_energy, mo_coeff, gamma, n_occ, 1) + b_matrix(mo_coeff, gamma, n_occ)
 
 
 def lowest_mode(mo_energy, mo_coeff, gamma, n_occ) -> tuple[float, np.ndarray]:
