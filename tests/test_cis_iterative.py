@@ -283,7 +283,7 @@ def test_orthonormal_complement_drops_dependent_rows():
     basis = basis.T
     new = rng.standard_normal((4, 50))
     rows = np.vstack([new, new[0] + new[1], basis[2] + 1e-12 * new[3]])  # one dependent, one in the basis
-    out, _ = cis_iterative._orthonormal_complement(basis, rows)
+    out, _ = cis_iterative.orthonormal_complement(basis, rows)
     assert out.shape[0] == 4
     np.testing.assert_allclose(out @ out.T, np.eye(4), atol=1e-12)
     assert np.max(np.abs(out @ basis.T)) < 1e-12

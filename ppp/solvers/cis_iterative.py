@@ -326,7 +326,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
         basis[np.arange(n_guess), order[:n_guess]] = 1.0
     if rng is not None and noise > 0 and basis.shape[0] < dim:
         basis += noise * rng.standard_normal(basis.shape) / np.sqrt(dim)
-    basis, _ = _orthonormal_complement(np.zeros((0, dim)), basis)
+    basis, _ = orthonormal_complement(np.zeros((0, dim)), basis)
     if basis.shape[0] < k:
         raise ValueError(f"{basis.shape[0]} independent start vectors for {k} roots")
     keep = min(dim, max(k, keep or k + extra))
@@ -370,7 +370,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
             if prev is not None:
                 p = np.zeros((m, prev.shape[1]))
                 p[:prev.shape[0]] = prev
-                p, _ = _orthonormal_complement(cols.T, p.T)
+                p, _ = orthonormal_complement(cols.T, p.T)
                 cols = np.concatenate([cols, p[:max(0, max_space - todo.size - cols.shape[1])].T], axis=1)
             vw[:, :cols.shape[1]] = np.matmul(cols.T, vw[:, :m])
             sub = cols.T @ sub @ cols
@@ -379,7 +379,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
         prev = s_k
         m0 = m
         for step in range(depth):
-            new, kept = _orthonormal_complement(vw[0, :m], new)
+            new, kept = orthonormal_complement(vw[0, :m], new)
             n_new = min(new.shape[0], max_space - m)
             if n_new == 0:
                 break
@@ -405,7 +405,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
         f"iterations (tolerance {tol:.0e})")
 
 
-def _orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e-6):
+def orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e-6):
     """Rows of ``new`` made orthonormal to the (orthonormal) ``basis`` rows and to each other.
 
     Block classical Gram-Schmidt against the basis, with a second pass when the first removed much of

@@ -35,6 +35,7 @@ import scipy.linalg
 
 from ..errors import ConvergenceError, TooLargeError
 from . import cis as cis_solver
+from .cis_iterative import orthonormal_complement
 
 
 @dataclass(frozen=True)
@@ -202,22 +203,11 @@ def davidson(mo_energy, mo_coeff, gamma, n_occ, n_states, *, tol=1e-6, max_iter=
             keep = np.linalg.qr(np.vstack([zs.T, ts.T]).T)[0].T
             basis = keep @ basis
             sp, sm = keep @ sp, keep @ sm
-        # orthonormalise the new directions against the basis and among themselves: normalise, project
-        # out the basis twice, drop what is left of directions already spanned, QR, and once more
-        # (projection + QR), so that the subspace stays orthonormal to round-off; the projected A - B
-        # is then positive definite whenever A - B is
-        new /= np.linalg.norm(new, axis=1)[:, None]
-        for _ in range(2):
-            new -= (new @ basis.T) @ basis
-        new = new[np.linalg.norm(new, axis=1) > 1e-6]
-        if len(new) == 0:
-            break
-        q, rdiag = np.linalg.qr(new.T)
-        q = q[:, np.abs(np.diag(rdiag)) > 1e-8].T
+        # orthonormal to the basis and among themselves to round-off (the CIS Davidson's routine), so that
+        # the projected A - B is positive definite whenever A - B is
+        q, _ = orthonormal_complement(basis, new)
         if len(q) == 0:
             break
-        q -= (q @ basis.T) @ basis
-        q = np.linalg.qr(q.T)[0].T
         qp, qm = products(mo_coeff, gamma, n_occ, q, diag)
         basis = np.vstack([basis, q])
         sp, sm = np.vstack([sp, qp]), np.vstack([sm, qm])
@@ -226,9 +216,9 @@ def davidson(mo_energy, mo_coeff, gamma, n_occ, n_states, *, tol=1e-6, max_iter=
 
 
 #: "auto" solves densely up to this many configurations n_occ * n_vir and iteratively above. Measured on
-#: 120 generated dyes (one BLAS thread, 10 roots + 1): dense 59 ms against iterative 74 ms at 600-700
-#: configurations, 103 against 93 ms at 700-1000 (the dense path needs three n^2 matrices: 15 MB at 800).
-DENSE_MAX_CONFIGURATIONS = 800
+#: 120 generated dyes (one BLAS thread, 10 roots + 1): dense 54 ms against iterative 60 ms at 600-700
+#: configurations, 94 against 72 ms at 700-1000 (the dense path needs three n^2 matrices: 12 MB at 700).
+DENSE_MAX_CONFIGURATIONS = 700
 
 
 def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int, n_states: int,
