@@ -127,6 +127,23 @@ def test_scf_failure_timeout_and_duplicate_are_recorded(tmp_path):
         assert "SCF did not converge" in rf.text("error_message")[0]
 
 
+def test_time_limit_holds_in_workers_forked_from_a_process_with_a_watchdog(tmp_path):
+    # Local workers are forked on Linux. A watchdog thread started in the parent (here: this test
+    # process computing a chunk itself) does not survive the fork; a worker that inherited the parent's
+    # watchdog object would arm deadlines nobody checks and the time limit would silently not hold.
+    from ppp.batch import worker
+    worker.compute_chunk([(0, 1, "", "C=C", "smiles", "")], ppp.Options(), ppp.model.params.load().sha256,
+                         False, 30.0)
+    assert worker._WATCHDOG is not None
+    big = "CN(C)" + "c1ccc(cc1)" * 40 + "C#N"
+    inp = tmp_path / "x.smi"
+    inp.write_text(f"{big} big\n")
+    out = tmp_path / "x.h5"
+    run(inp, out, jobs=1, time_limit=0.5)
+    with ResultsFile(out) as rf:
+        assert rf.text("error_kind") == ["timeout"]
+
+
 # -- same file whatever the scheduling --------------------------------------------------------------
 def test_one_worker_gives_the_same_file(library, tmp_path):
     inp, ref = library

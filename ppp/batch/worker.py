@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import ctypes
 import hashlib
+import os
 import threading
 import time
 from dataclasses import dataclass, field
@@ -48,6 +49,7 @@ class _Watchdog:
     def __init__(self):
         self._cond = threading.Condition()
         self._deadlines: dict[int, float] = {}
+        self._fired: set[int] = set()  # threads sent a MoleculeTimeout since they were armed
         self._thread = threading.Thread(target=self._run, name="ppp-time-limit", daemon=True)
         self._thread.start()
 
@@ -58,6 +60,7 @@ class _Watchdog:
                 for tid, deadline in list(self._deadlines.items()):
                     if deadline <= now:
                         del self._deadlines[tid]
+                        self._fired.add(tid)
                         ctypes.pythonapi.PyThreadState_SetAsyncExc(ctypes.c_ulong(tid),
                                                                    ctypes.py_object(MoleculeTimeout))
                 wait = min(self._deadlines.values(), default=now + 3600.0) - now
@@ -72,12 +75,40 @@ class _Watchdog:
         tid = threading.get_ident()
         with self._cond:
             self._deadlines.pop(tid, None)
-            # clear an exception set by the watchdog but not yet raised in this thread
-            ctypes.pythonapi.PyThreadState_SetAsyncExc(ctypes.c_ulong(tid), None)
+            fired = tid in self._fired
+            self._fired.discard(tid)
+        if fired:
+            _absorb_pending_timeout()
+
+
+def _absorb_pending_timeout() -> None:
+    """Let a MoleculeTimeout that the watchdog set for this thread, but that has not been raised yet
+    (the molecule finished just in time), arrive here rather than in the next molecule.
+
+    The exception is raised at the interpreter's next periodic check, which every loop iteration
+    makes. (Clearing it instead, PyThreadState_SetAsyncExc(tid, NULL), leaves CPython 3.11's "pending
+    asynchronous exception" flag set for good: harmless in plain runs, but it made the thread spin
+    forever under a profiler or tracer. So no call of that kind is made unless the watchdog fired.)
+    """
+    try:
+        for _ in range(64):
+            pass
+    except MoleculeTimeout:
+        pass
 
 
 _WATCHDOG: _Watchdog | None = None
 _WATCHDOG_LOCK = threading.Lock()
+
+
+def _forget_watchdog() -> None:
+    """In a forked child: the parent's watchdog thread does not exist here, and its lock may have been
+    held at the moment of the fork; start afresh (a new watchdog on first use)."""
+    global _WATCHDOG, _WATCHDOG_LOCK
+    _WATCHDOG, _WATCHDOG_LOCK = None, threading.Lock()
+
+
+os.register_at_fork(after_in_child=_forget_watchdog)
 
 
 def _watchdog() -> _Watchdog:

@@ -1,0 +1,72 @@
+"""The per-molecule time limit of batch workers (ppp.batch.worker): a watchdog thread that raises
+MoleculeTimeout in the computing thread. Laws checked: a pending timeout never leaks into the next
+molecule, and arming/disarming works under a profiler (sys.setprofile), where an earlier version spun
+forever."""
+from __future__ import annotations
+
+import subprocess
+import sys
+import textwrap
+import time
+
+from ppp.batch import worker
+
+
+def test_a_timeout_at_the_deadline_never_leaks_past_disarm():
+    # molecules that end right around their deadline: the watchdog sometimes fires inside the
+    # computation (recorded as a timeout), sometimes just as it ends; either way nothing may be raised
+    # after disarm, where it would hit the next molecule or the writer
+    dog = worker._Watchdog()
+    timeouts = leaked = 0
+    for _ in range(200):
+        try:
+            dog.arm(0.001)
+            try:
+                end = time.perf_counter() + 0.001
+                while time.perf_counter() < end:
+                    pass
+            finally:
+                dog.disarm()
+        except worker.MoleculeTimeout:
+            timeouts += 1
+        try:
+            for _ in range(1000):
+                pass
+        except worker.MoleculeTimeout:
+            leaked += 1
+    assert leaked == 0
+    assert timeouts > 0  # the race was exercised
+
+
+def test_time_limit_fires_and_is_disarmed():
+    dog = worker._Watchdog()
+    dog.arm(0.05)
+    raised = False
+    try:
+        while True:  # a computation that runs past its limit
+            sum(range(100))
+    except worker.MoleculeTimeout:
+        raised = True
+    finally:
+        dog.disarm()
+    assert raised
+    dog.arm(30.0)
+    dog.disarm()  # in time: nothing is raised, now or later
+    assert sum(range(10_000)) == 49_995_000
+
+
+def test_arm_and_disarm_under_a_profiler_do_not_hang():
+    code = textwrap.dedent("""
+        import cProfile
+        from ppp.batch.worker import _Watchdog
+        profiler = cProfile.Profile()
+        profiler.enable()
+        dog = _Watchdog()
+        for _ in range(3):
+            dog.arm(100.0)
+            dog.disarm()
+        profiler.disable()
+        print("done")
+    """)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60)
+    assert out.returncode == 0 and out.stdout.strip() == "done", out.stderr
