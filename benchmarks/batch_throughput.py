@@ -128,6 +128,16 @@ def loop_rate(path: Path, count: int) -> tuple[float, int]:
     return len(pick) / (time.perf_counter() - t), len(pick), (time.process_time() - c) / len(pick)
 
 
+def write_repeated(src: Path, dst: Path, times: int) -> None:
+    """The SMILES file ``src`` repeated ``times`` times, each copy's IDs suffixed with "#k" so that no
+    record is a duplicate of another."""
+    items = list(inputs.read_items(src))
+    with open(dst, "w") as fh:
+        for k in range(times):
+            for it in items:  # the deliberately bad lines stay bad
+                fh.write(f"{it.payload} {it.name or 'x'}#{k}\n")
+
+
 def report(label: str, path: Path, jobs: int, loop_n: int, tmp: Path) -> dict:
     b = batch_in_subprocess(path, tmp / f"{label}.h5", jobs)
     rate = b["rows"] / b["wall"]
@@ -152,6 +162,8 @@ def main() -> None:
     ap.add_argument("--max-centres", type=int, default=60)
     ap.add_argument("--writer-sizes", default="10000,50000,200000",
                     help="library sizes for the writer-only memory check (comma-separated; empty: skip)")
+    ap.add_argument("--demo-repeat", type=int, default=10,
+                    help="also run the demo library repeated this many times, IDs made unique (10; 1: skip)")
     args = ap.parse_args()
     print(f"ppp {ppp.__version__}, python {sys.version.split()[0]}, {os.cpu_count()} cores, "
           f"load average {os.getloadavg()[0]:.1f}")
@@ -160,6 +172,11 @@ def main() -> None:
         if args.writer_sizes:
             writer_only([int(x) for x in args.writer_sizes.split(",")], tmp)
         report("demo library", DEMO_LIBRARY, args.jobs, 10_000, tmp)
+        if args.demo_repeat > 1:
+            # the same real dyes, enough of them that the run is not mostly start-up and compaction
+            rep = tmp / f"demo_x{args.demo_repeat}.smi"
+            write_repeated(DEMO_LIBRARY, rep, args.demo_repeat)
+            report(f"demo x{args.demo_repeat}", rep, args.jobs, 10_000, tmp)
         smiles = dye_library(args.n, seed=args.seed, min_centres=args.min_centres, max_centres=args.max_centres)
         print(f"memory and size as the generated library ({args.min_centres}-{args.max_centres} centres) grows:")
         for frac in (4, 2, 1):
