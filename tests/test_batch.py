@@ -107,16 +107,23 @@ def test_every_bad_input_kind_lands_in_the_file(library):
         assert np.all(counts[status == 1] == 0) and np.all(counts[status == 0] > 0)
 
 
-def test_scf_failure_timeout_and_duplicate_are_recorded(tmp_path):
-    # 245 centres: several seconds, far beyond the 0.5 s limit, while hexatriene takes a few ms even on a
-    # loaded machine (workers pay one-time costs, such as loading cached numba kernels, before the first input)
-    big = "CN(C)" + "c1ccc(cc1)" * 40 + "C#N"
-    inp = tmp_path / "x.smi"
-    inp.write_text(f"C=CC=CC=C\n{big} big\nC=CC=CC=C\n")
-    out = tmp_path / "x.h5"
+#: 245 centres: several seconds, far beyond a 0.5 s limit, while hexatriene takes a few ms even on a
+#: loaded machine (workers pay one-time costs, such as loading cached numba kernels, before the first input)
+SLOW = "CN(C)" + "c1ccc(cc1)" * 40 + "C#N"
+
+
+def run_with_half_second_limit(tmp_path, lines: str):
+    """Batch of ``lines`` on one worker with a 0.5 s time limit: (error kinds, error messages)."""
+    inp, out = tmp_path / "x.smi", tmp_path / "x.h5"
+    inp.write_text(lines)
     run(inp, out, jobs=1, time_limit=0.5)
     with ResultsFile(out) as rf:
-        kinds, msgs = rf.text("error_kind"), rf.text("error_message")
+        return rf.text("error_kind"), rf.text("error_message")
+
+
+def test_scf_failure_timeout_and_duplicate_are_recorded(tmp_path):
+    kinds, msgs = run_with_half_second_limit(tmp_path, f"C=CC=CC=C\n{SLOW} big\nC=CC=CC=C\n")
+    inp = tmp_path / "x.smi"
     assert kinds == ["", "timeout", "duplicate"]
     assert msgs[1] == "line 2: stopped after the time limit of 0.5 s"
     assert "already used by line 1" in msgs[2]
@@ -135,13 +142,8 @@ def test_time_limit_holds_in_workers_forked_from_a_process_with_a_watchdog(tmp_p
     worker.compute_chunk([(0, 1, "", "C=C", "smiles", "")], ppp.Options(), ppp.model.params.load().sha256,
                          False, 30.0)
     assert worker._WATCHDOG is not None
-    big = "CN(C)" + "c1ccc(cc1)" * 40 + "C#N"
-    inp = tmp_path / "x.smi"
-    inp.write_text(f"{big} big\n")
-    out = tmp_path / "x.h5"
-    run(inp, out, jobs=1, time_limit=0.5)
-    with ResultsFile(out) as rf:
-        assert rf.text("error_kind") == ["timeout"]
+    kinds, _ = run_with_half_second_limit(tmp_path, f"{SLOW} big\n")
+    assert kinds == ["timeout"]
 
 
 # -- same file whatever the scheduling --------------------------------------------------------------
