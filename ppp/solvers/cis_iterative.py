@@ -393,8 +393,11 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
     res_norm = np.full(k, np.inf)
     locked = np.zeros(k, dtype=bool)  # converged roots: residuals not recomputed until the final check
     prev = None  # coefficients of the previous iteration's Ritz vectors in the current basis
+    changed = True  # the subspace grew or restarted since the last Rayleigh-Ritz step
     for it in range(1, max_iter + 1):
-        theta_all, s = _lowest_eigh(0.5 * (sub + sub.T), min(m, keep))
+        if changed:  # (not after a pass that only locked roots: the final check reuses its Ritz pairs)
+            theta_all, s = _lowest_eigh(0.5 * (sub + sub.T), min(m, keep))
+            changed = False
         kk = min(k, m)
         theta, s_k = theta_all[:kk], s[:, :kk]
         active = np.flatnonzero(~locked[:kk])
@@ -430,6 +433,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
             s_k = np.eye(m)[:, :kk]
         prev = s_k
         m0 = m
+        changed = True
         for step in range(depth):
             new, kept = orthonormal_complement(vw[0, :m], new, reorth=REORTH)
             n_new = min(new.shape[0], max_space - m)
