@@ -250,7 +250,8 @@ def _lowest_tridiagonal(a: np.ndarray, n: int):
     if info != 0:
         return None
     w = w[:n]
-    iblock = np.ones(m, dtype=np.int32)  # one block: dstein then handles any splitting itself
+    iblock = np.ones(m, dtype=np.int32)  # one block: inverse iteration on the whole matrix, also where
+    # it splits (exact zeros off the diagonal, tested with a diagonal matrix)
     isplit = np.zeros(m, dtype=np.int32)
     isplit[0] = m
     z, info = _stein(d, e, w, iblock, isplit)
@@ -467,8 +468,8 @@ def orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e-
     Block classical Gram-Schmidt against the basis, with a second pass when the first left less than
     ``reorth`` of a row's squared norm (Kahan-Parlett "twice is enough"; 0.5 is their criterion, a
     smaller value accepts one pass for rows that kept more: a row that kept a fraction f of its squared
-    norm keeps rounding errors of order 1e-16 / sqrt(f) along the basis); rows left with less than sqrt(``drop``) of their norm
-    are dropped; then Cholesky orthonormalisation of the block (Gram-Schmidt order: row j stays
+    norm keeps rounding errors of order 1e-16 / sqrt(f) along the basis); rows left with less than
+    sqrt(``drop``) of their norm are dropped; then Cholesky orthonormalisation of the block (Gram-Schmidt order: row j stays
     mostly the j-th input), or canonical (Loewdin) orthonormalisation when the rows are nearly
     dependent. When the block was ill-conditioned, both steps run once more, so that the subspace
     stays orthonormal to rounding (a loss would show up as wrong Ritz values).
@@ -498,6 +499,7 @@ def orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e-
         piv = chol.diagonal() ** 2 / s.diagonal() if info == 0 else None
         if piv is not None and piv.min() >= drop:
             linv, info = _trtri(chol, lower=1)
+        if piv is not None and piv.min() >= drop and info == 0:
             new = linv @ new
             well = piv.min() > 0.01
         else:
