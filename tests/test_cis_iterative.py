@@ -295,3 +295,64 @@ def test_iterative_kernel_raises_when_not_converged():
     model, res = _model(STILBAZOLIUM)
     with pytest.raises(ConvergenceError, match="did not converge"):
         cis_iterative.kernel(res.mo_energy, res.mo_coeff, model.gamma, model.n_occ, 10, 1, max_iter=1)
+
+
+def _symmetric_with_spectrum(lam, seed):
+    """Q diag(lam) Q^T with a random orthogonal Q (law of linear algebra: its eigenvalues are lam)."""
+    q, _ = np.linalg.qr(np.random.default_rng(seed).standard_normal((len(lam), len(lam))))
+    a = (q * np.asarray(lam, dtype=float)) @ q.T
+    return 0.5 * (a + a.T)
+
+
+@pytest.mark.parametrize("m, n", [(41, 16), (60, 16), (100, 24), (150, 24)])
+def test_subspace_eigensolver_equals_numpy(m, n):
+    """The tridiagonal route (dsytrd, dsterf, dstein, dormqr) of the Davidson Rayleigh-Ritz step gives
+    numpy's eigenvalues and orthonormal eigenvectors (checked by their residuals)."""
+    a = np.random.default_rng(m).standard_normal((m, m))
+    a = a + a.T
+    a_copy = a.copy()
+    w, v = cis_iterative._lowest_tridiagonal(a, n)
+    np.testing.assert_array_equal(a, a_copy)  # input untouched
+    np.testing.assert_allclose(w, np.linalg.eigvalsh(a)[:n], rtol=0, atol=1e-12)
+    np.testing.assert_allclose(v.T @ v, np.eye(n), rtol=0, atol=1e-13)
+    assert np.max(np.abs(a @ v - v * w)) < 1e-12
+
+
+def test_subspace_eigensolver_on_repeated_eigenvalues_and_a_split_matrix():
+    """Degenerate eigenvalues (as in symmetric molecules) and a tridiagonal form that splits into blocks
+    (a diagonal matrix with repeated entries) still give an orthonormal set of exact eigenvectors."""
+    lam = np.r_[1.0, 1.0, 1.0, 2.0, 2.0, np.linspace(3.0, 20.0, 45)]
+    for a in (_symmetric_with_spectrum(lam, 9), np.diag(np.random.default_rng(2).permutation(lam))):
+        w, v = cis_iterative._lowest_eigh(a, 16)
+        np.testing.assert_allclose(w[:16], lam[:16], rtol=0, atol=1e-12)
+        np.testing.assert_allclose(v[:, :16].T @ v[:, :16], np.eye(16), rtol=0, atol=1e-13)
+        assert np.max(np.abs(a @ v[:, :16] - v[:, :16] * w[:16])) < 1e-12
+    # small matrices take the full dsyevd route: same contract
+    small = _symmetric_with_spectrum(lam[:30], 4)
+    w, v = cis_iterative._lowest_eigh(small, 8)
+    np.testing.assert_allclose(w[:8], lam[:8], rtol=0, atol=1e-12)
+
+
+def test_single_gram_schmidt_pass_keeps_the_block_orthonormal():
+    """With the Davidson's re-projection threshold (a second pass only when a row kept less than 1e-4 of
+    its squared norm), rows that lost up to 99.99 % of their norm to the basis (one pass) or more (two
+    passes) still come out orthonormal to it to rounding, and rows inside the span are dropped."""
+    rng = np.random.default_rng(12)
+    basis, _ = np.linalg.qr(rng.standard_normal((400, 40)))
+    basis = basis.T
+    inside = rng.standard_normal((8, 40)) @ basis
+    noise = rng.standard_normal((8, 400))
+    noise /= np.linalg.norm(noise, axis=1)[:, None]
+    scale = np.linalg.norm(inside, axis=1)[:, None]
+    rows = np.vstack([inside[:4] + 0.03 * scale[:4] * noise[:4],  # keep about 1e-3 of the squared norm
+                      inside[4:6] + 3e-3 * scale[4:6] * noise[4:6],  # about 1e-5: second pass
+                      rng.standard_normal((2, 400)),
+                      inside[6:] + 1e-9 * scale[6:] * noise[6:]])  # inside the span: dropped
+    kept = 1.0 - np.linalg.norm(rows @ basis.T, axis=1) ** 2 / np.linalg.norm(rows, axis=1) ** 2
+    assert np.all((kept[:4] > cis_iterative.REORTH) & (kept[:4] < 0.01))  # the one-pass regime is exercised
+    assert np.all((kept[4:6] < cis_iterative.REORTH) & (kept[4:6] > 1e-6))  # kept (drop: 1e-6)
+    out, idx = cis_iterative.orthonormal_complement(basis, rows, reorth=cis_iterative.REORTH)
+    assert out.shape[0] == 8
+    np.testing.assert_array_equal(idx, np.arange(8))
+    np.testing.assert_allclose(out @ out.T, np.eye(8), rtol=0, atol=1e-13)
+    assert np.max(np.abs(out @ basis.T)) < 1e-13
