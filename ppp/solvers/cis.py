@@ -71,7 +71,8 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
 #: Solver names accepted by :func:`kernel`.
 SOLVERS = ("auto", "dense", "iterative")
 #: "auto" uses the dense matrix up to this many configurations n_occ * n_vir, Davidson above. Measured
-#: on the generated dyes of dye_library(300, seed=1) (10 singlets + 1 + 10 triplets, one BLAS thread,
+#: on the generated dyes of dye_library(300, seed=1) (11 singlet roots, i.e. 10 + 1 for the degeneracy check
+#: of align_degenerate, and 10 triplets; one BLAS thread,
 #: 2-core machine shared with other jobs, both solvers in turn on each molecule): dense/iterative time
 #: 0.76 at 400-450 configurations, 0.85 at 450-500, 1.05 at 500-550, 1.21 at 550-600, 1.38 at 600-650,
 #: 1.67 at 650-700 (benchmarks/bench_crossover.py: 0.80 at 400-499, 1.08 at 500-599).
