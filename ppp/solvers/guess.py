@@ -43,11 +43,10 @@ def localized_density(n_pi: np.ndarray, double_bonds: np.ndarray) -> np.ndarray 
     n_pi = np.asarray(n_pi, dtype=float)
     n = n_pi.shape[0]
     dens = np.diag(n_pi)
-    partners = np.zeros(n, dtype=int)
-    for i, j in np.asarray(double_bonds, dtype=int).reshape(-1, 2):
-        dens[i, j] = dens[j, i] = 1.0
-        partners[i] += 1
-        partners[j] += 1
+    pairs = np.asarray(double_bonds, dtype=int).reshape(-1, 2)
+    dens[pairs[:, 0], pairs[:, 1]] = 1.0
+    dens[pairs[:, 1], pairs[:, 0]] = 1.0
+    partners = np.bincount(pairs.ravel(), minlength=n)  # double bonds at each centre
     single = n_pi == 1
     if np.any(partners[single] != 1) or np.any(partners[~single] != 0):
         return None
