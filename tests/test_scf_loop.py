@@ -83,3 +83,26 @@ def test_in_place_diis_equals_the_reference_diis():
         np.testing.assert_array_equal(new.b, old.b)
         if k:
             np.testing.assert_array_equal(new.extrapolate(), old.extrapolate())
+
+
+def test_blas_thread_limit_is_set_and_restored():
+    """blas_threads changes only the libraries that differ and restores them, also on an exception;
+    threadpoolctl's own report is the outside check."""
+    from threadpoolctl import threadpool_info
+
+    from ppp.solvers.threads import blas_threads
+
+    def counts():
+        return sorted(i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas")
+
+    before = counts()
+    with blas_threads(1):
+        assert set(counts()) == {1}
+        with blas_threads(2):
+            assert set(counts()) == {2}
+        assert set(counts()) == {1}
+    assert counts() == before
+    with pytest.raises(KeyError):
+        with blas_threads(1):
+            raise KeyError("inside")
+    assert counts() == before
