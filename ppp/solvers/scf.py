@@ -123,6 +123,7 @@ class _DIIS:
         self._rhs: list = [None] * (space + 1)
         self._f = self._e = None
         self._pending = 0
+        self.last_norm = np.inf  # B_ss of the pair stored last
         if n is not None:
             self._allocate(n)
 
@@ -132,6 +133,7 @@ class _DIIS:
         self._shape = (n, n)
         self._fv = [row.reshape(n, n) for row in self._f]  # N x N views of the slots
         self._ev = [row.reshape(n, n) for row in self._e]
+        self._dv = [row[::n + 1] for row in self._f]  # the diagonals of the Fock slots
 
     @property
     def focks(self) -> list[np.ndarray]:
@@ -142,11 +144,11 @@ class _DIIS:
         """B_ij over the stored vectors in insertion order."""
         return self._b[np.ix_(self.slots, self.slots)]
 
-    def target(self) -> tuple[np.ndarray, np.ndarray]:
-        """(F, e) N x N views of the slot the next :meth:`commit` stores (the oldest when full)."""
+    def target(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(F, e, diagonal of F) views of the slot the next :meth:`commit` stores (the oldest when full)."""
         slot = self.slots[0] if len(self.slots) == self.space else len(self.slots)
         self._pending = slot
-        return self._fv[slot], self._ev[slot]
+        return self._fv[slot], self._ev[slot], self._dv[slot]
 
     def commit(self) -> None:
         """Store the pair written into the views of :meth:`target`."""
@@ -158,13 +160,13 @@ class _DIIS:
         row = self._e[:n] @ self._e[slot]
         self._b[slot, :n] = row
         self._b[:n, slot] = row
-        self._norm[slot] = float(row[slot])
+        self.last_norm = self._norm[slot] = float(row[slot])
 
     def push(self, fock: np.ndarray, err: np.ndarray) -> None:
         """Store a copy of one (Fock matrix, error) pair."""
         if self._f is None:
             self._allocate(fock.shape[0])
-        f, e = self.target()
+        f, e, _ = self.target()
         f[...] = fock
         e[...] = err
         self.commit()
@@ -227,37 +229,50 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
             and "numba" in sys.modules):
         from .kernels import scf_loop
         return scf_loop(core, gamma, n_occ, dens0, max_iter, diis_space, conv_tol, conv_tol_grad)
-    step = n + 1
     d = 0.5 * np.asarray(dens0, dtype=float)
     gamma2 = gamma + gamma
-    e_old = np.inf
     ring = _DIIS(diis_space if use_diis else 1, n)
     fd = np.empty((n, n))
     eye = np.eye(n) if level_shift else None
     core_change = 0.0
+    # With DIIS, |FD - DF|^2 comes with the new row of B; max |x| >= |x|_F / N, so while |FD - DF|_F
+    # exceeds N conv_tol_grad / 2 (with a margin for its rounding) the error test must fail and the
+    # energy is not needed yet. The energy of the iteration before is then computed when first needed,
+    # from its density, core and Fock matrix (still in the ring): the same numbers in the same order.
+    lazy = use_diis and diis_space >= 2
+    gate = (0.5 * n * conv_tol_grad) ** 2 * (1.0 + 1e-6)
+    e_old = np.inf  # energy of the iteration before; None when not computed
+    prev = None
     for it in range(1, max_iter + 1):
         if core_update is not None:
             new_core = core_update(d + d)
             core_change = float(np.abs(new_core - core).max()) if it > 1 else np.inf
             core = new_core
-        fock, err = ring.target()
+        fock, err, fdiag = ring.target()
         np.multiply(d, gamma, out=fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
         np.subtract(core, fock, out=fock)
-        fock.ravel()[::step] += gamma2 @ d.diagonal()  # the diagonal, as a strided view
-        e = float(np.vdot(d, core)) + float(np.vdot(d, fock))
+        fdiag += gamma2 @ d.diagonal()  # the diagonal, as a strided view
         np.matmul(fock, d, out=fd)
         np.subtract(fd, fd.T, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
-        # the energy test allows for rounding in E (|E| ~ 10^4 eV at 1,000 centres); FP - PF is
-        # antisymmetric: its largest entry is its largest |entry|
-        if (abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and 2.0 * float(err.max()) < conv_tol_grad
-                and core_change < core_tol):
-            return True, it, d + d
-        e_old = e
-        f_use = fock
         if use_diis:
             ring.commit()
-            if len(ring.slots) >= 2:
-                f_use = ring.extrapolate()
+        if not lazy or ring.last_norm < gate:
+            e = float(np.vdot(d, core)) + float(np.vdot(d, fock))
+            if e_old is None:
+                pd, pc, pf = prev
+                e_old = float(np.vdot(pd, pc)) + float(np.vdot(pd, pf))
+            # the energy test allows for rounding in E (|E| ~ 10^4 eV at 1,000 centres); FP - PF is
+            # antisymmetric: its largest entry is its largest |entry|
+            if (abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and 2.0 * float(err.max()) < conv_tol_grad
+                    and core_change < core_tol):
+                return True, it, d + d
+        else:
+            e = None
+        e_old = e
+        prev = (d, core, fock)
+        f_use = fock
+        if use_diis and len(ring.slots) >= 2:
+            f_use = ring.extrapolate()
         if level_shift:
             f_use = f_use + level_shift * (eye - d)  # shift of the virtual space, I - P/2 (Saunders & Hillier 1973)
         c = eigh(f_use)[1][:, :n_occ]
