@@ -149,3 +149,39 @@ def test_scf_loop_kernel_reports_non_convergence(monkeypatch):
     assert not res.converged
     ok, it, _ = kernels.scf_loop(m.core, m.gamma, m.n_occ, res.dens, 2, 8, 1e-11, 1e-9)
     assert not ok and it == 2
+
+
+@pytest.mark.parametrize("law", ["overlap", "exponential"])
+@pytest.mark.parametrize("smiles", ["C=CC=CC=CC=CC=C", "CN(C)c1ccc(cc1)/C=C/c1ccc(cc1)[N+](=O)[O-]"])
+def test_scf_loop_kernel_with_bond_order_beta_equals_the_numpy_loop(monkeypatch, law, smiles):
+    """The joint SCF / bond-order-beta run (ppp.model.variable_beta) in the kernel, against the numpy loop
+    calling CoreOfBondOrders at every iteration: same iteration count, densities and final betas."""
+    from ppp.model import variable_beta as vb
+    from ppp.solvers import guess
+
+    kernels.warm_up()
+    m = _model(smiles)
+    st = vb.BondOrderBeta(law=law)
+    mask = vb.variable_bonds(m.types, m.bonds, st)
+    i, j = m.bonds[mask, 0], m.bonds[mask, 1]
+    core_of = vb.CoreOfBondOrders(m.core.copy(), i, j, m.core[i, j].copy(), st)
+    assert core_of.kernel_form is not None
+    p0 = guess.atomic_start(m.core, m.gamma, m.core_charges, m.n_electrons, m.n_occ)
+    kw = dict(max_iter=100, core_update=core_of, core_tol=st.tol_ev)
+    ref = _numpy_loop(monkeypatch, m.core, m.gamma, m.n_occ, p0, **kw)
+    got = scf.iterate(m.core, m.gamma, m.n_occ, p0, **kw)  # numba is loaded: the kernel runs
+    assert ref[0] and got[:2] == ref[:2]
+    assert np.max(np.abs(got[2] - ref[2])) <= 1e-9
+    assert np.max(np.abs(core_of(got[2]) - core_of(ref[2]))) <= 1e-9
+
+
+def test_reaction_field_core_stays_on_the_numpy_loop():
+    """A density-dependent diagonal (solvent reaction field) has no kernel form: the numpy loop runs it."""
+    from ppp.model import variable_beta as vb
+
+    m = _model("C=CC=C")
+    st = vb.BondOrderBeta()
+    i, j = m.bonds[:, 0], m.bonds[:, 1]
+    core_of = vb.CoreOfBondOrders(m.core.copy(), i, j, m.core[i, j].copy(), st, np.diagonal(m.core).copy(),
+                                  lambda p: 0.01 * np.diagonal(p))
+    assert core_of.kernel_form is None

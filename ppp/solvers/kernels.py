@@ -15,6 +15,7 @@ the 15-25 us of numpy calls per iteration that a dye-sized SCF spends next to a 
 """
 from __future__ import annotations
 
+import math
 from functools import lru_cache
 
 import numpy as np
@@ -58,9 +59,13 @@ def _compiled():
         return 0.5 * e
 
     @numba.njit(cache=True, fastmath=False, nogil=True)
-    def scf_loop(core, gamma, n_occ, dens0, max_iter, space, conv_tol, conv_tol_grad, eps):
-        n = core.shape[0]
+    def scf_loop(core0, gamma, n_occ, dens0, max_iter, space, conv_tol, conv_tol_grad, eps,
+                 bi, bj, beta_ref, law, a_len, b_len, k_rho, s_ref, r_ref, delta, core_tol):
+        n = core0.shape[0]
         d = 0.5 * dens0  # half density D = P / 2 (see ppp.solvers.scf.iterate)
+        nb = bi.shape[0]
+        core = core0.copy() if nb else core0
+        core_change = 0.0
         focks = np.empty((space, n, n))
         errs = np.empty((space, n, n))
         b = np.zeros((space, space))
@@ -68,6 +73,21 @@ def _compiled():
         count = 0
         e_old = np.inf
         for it in range(1, max_iter + 1):
+            if nb:  # bond-order beta (ppp.model.variable_beta): beta_ref * factor(r(P_ij))
+                change = 0.0
+                for m in range(nb):
+                    i, j = bi[m], bj[m]
+                    length = a_len - b_len * (2.0 * d[i, j])
+                    if law == 0:  # overlap law, Mulliken et al. (1949) 2p-pi overlap
+                        rho = k_rho * length
+                        val = beta_ref[m] * (math.exp(-rho) * (1.0 + rho * (1.0 + rho * (0.4 + rho / 15.0)))
+                                             / s_ref)
+                    else:  # exponential law
+                        val = beta_ref[m] * math.exp(-(length - r_ref) / delta)
+                    change = max(change, abs(val - core[i, j]))
+                    core[i, j] = val
+                    core[j, i] = val
+                core_change = change if it > 1 else np.inf
             slot = order[0] if count == space else count
             f = focks[slot]
             er = errs[slot]
@@ -90,7 +110,8 @@ def _compiled():
                     er[i, j] = x
                     if x > max_err:
                         max_err = x
-            if abs(e - e_old) < max(conv_tol, 1e3 * eps * abs(e)) and 2.0 * max_err < conv_tol_grad:
+            if (abs(e - e_old) < max(conv_tol, 1e3 * eps * abs(e)) and 2.0 * max_err < conv_tol_grad
+                    and core_change < core_tol):
                 return True, it, d + d
             e_old = e
             if count == space:  # the oldest slot is overwritten
@@ -150,20 +171,36 @@ def _compiled():
 
 
 def scf_loop(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, max_iter: int,
-             diis_space: int, conv_tol: float, conv_tol_grad: float) -> tuple[bool, int, np.ndarray]:
+             diis_space: int, conv_tol: float, conv_tol_grad: float, bond_beta: tuple | None = None,
+             core_tol: float = np.inf) -> tuple[bool, int, np.ndarray]:
     """numba twin of the plain-DIIS branch of :func:`ppp.solvers.scf.iterate` (its reference, with the
     equations; ``tests/test_kernels.py`` checks them equal): the whole SCF loop, Fock build, energy,
     error FP - PF, DIIS (Pulay 1980, 1982) and eigensolve, in one compiled call.
 
     core, gamma, dens0 : (N, N) float64, eV and electrons;  n_occ : doubly occupied orbitals;
     max_iter : Fock builds allowed;  diis_space : DIIS vectors kept;  conv_tol : energy change, eV;
-    conv_tol_grad : max |FP - PF|, eV. Returns (converged, iterations, density (N, N)).
+    conv_tol_grad : max |FP - PF|, eV.
+    bond_beta : optional ``kernel_form`` of :class:`ppp.model.variable_beta.CoreOfBondOrders` (core0, i, j,
+        beta_ref, law, a, b, zeta/a0, S(r_ref), r_ref, delta): the varied betas are rebuilt from the bond
+        orders at every iteration, as that class's ``__call__`` does, and the run also needs the last
+        change of a beta below ``core_tol`` (eV). ``core`` is then ignored.
+    Returns (converged, iterations, density (N, N)).
     """
+    if bond_beta is None:
+        empty = np.zeros(0, dtype=np.int64)
+        extra = (empty, empty, np.zeros(0), 0, 0.0, 0.0, 0.0, 1.0, 0.0, 1.0)
+        core_tol = np.inf
+    else:
+        core, extra = bond_beta[0], bond_beta[1:]
     core = np.ascontiguousarray(core, dtype=np.float64)
     gamma = np.ascontiguousarray(gamma, dtype=np.float64)
     dens0 = np.ascontiguousarray(dens0, dtype=np.float64)
+    i, j, beta_ref, law, a, b, k, s_ref, r_ref, delta = extra
     ok, it, dens = _compiled()[1](core, gamma, int(n_occ), dens0, int(max_iter), int(diis_space),
-                                  float(conv_tol), float(conv_tol_grad), float(np.finfo(float).eps))
+                                  float(conv_tol), float(conv_tol_grad), float(np.finfo(float).eps),
+                                  np.ascontiguousarray(i, dtype=np.int64), np.ascontiguousarray(j, dtype=np.int64),
+                                  np.ascontiguousarray(beta_ref, dtype=np.float64), int(law), float(a), float(b),
+                                  float(k), float(s_ref), float(r_ref), float(delta), float(core_tol))
     return bool(ok), int(it), dens
 
 

@@ -209,7 +209,9 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
 
     Work per iteration: one O(N^2) Fock build, one matrix product for the error, one eigensolve.
     core_update : optional callable dens -> core, evaluated at every iteration, for a core Hamiltonian
-        that depends on the density (bond-order-dependent beta); at convergence core and density are
+        that depends on the density (bond-order-dependent beta, e.g.
+        :class:`ppp.model.variable_beta.CoreOfBondOrders`, whose ``kernel_form`` lets the compiled loop
+        evaluate the same update); at convergence core and density are
         then consistent with each other as well: the core is the one of the returned density, and the
         error FP - PF is that of the fixed-core SCF on it. DIIS then extrapolates Fock matrices that
         include the core, i.e. one DIIS on the joint density/core error.
@@ -225,10 +227,12 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     (:func:`ppp.solvers.kernels.scf_loop`, see ``JIT_MIN_CENTRES``); this loop is its reference.
     """
     n = core.shape[0]
-    if (use_diis and not level_shift and not damping and core_update is None and n >= JIT_MIN_CENTRES
-            and "numba" in sys.modules):
-        from .kernels import scf_loop
-        return scf_loop(core, gamma, n_occ, dens0, max_iter, diis_space, conv_tol, conv_tol_grad)
+    if use_diis and not level_shift and not damping and n >= JIT_MIN_CENTRES and "numba" in sys.modules:
+        form = getattr(core_update, "kernel_form", None)
+        if core_update is None or form is not None:
+            from .kernels import scf_loop
+            return scf_loop(core, gamma, n_occ, dens0, max_iter, diis_space, conv_tol, conv_tol_grad,
+                            bond_beta=form, core_tol=core_tol)
     d = 0.5 * np.asarray(dens0, dtype=float)
     gamma2 = gamma + gamma
     ring = _DIIS(diis_space if use_diis else 1, n)
