@@ -171,7 +171,7 @@ class GroundState:
 
 def ground_state(dens: np.ndarray, core_charges: np.ndarray, coords: np.ndarray, bonds: np.ndarray) -> GroundState:
     """pi populations, charges, Coulson bond orders (Coulson 1939) and the pi dipole moment."""
-    pop = np.diag(dens).copy()
+    pop = dens.diagonal().copy()
     q = np.asarray(core_charges, dtype=float) - pop
     bonds = np.asarray(bonds, dtype=int).reshape(-1, 2)
     orders = dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)

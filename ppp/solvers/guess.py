@@ -25,7 +25,7 @@ from __future__ import annotations
 import numpy as np
 from rdkit import Chem
 
-from .scf import density, eigh, fock_matrix
+from .scf import density, eigh
 
 
 def localized_density(n_pi: np.ndarray, double_bonds: np.ndarray) -> np.ndarray | None:
@@ -71,7 +71,14 @@ def atomic_start(core: np.ndarray, gamma: np.ndarray, core_charges: np.ndarray, 
     core, gamma : (N, N) eV;  core_charges : (N,);  n_electrons : pi electrons;  n_occ : doubly occupied
     """
     pop = atomic_populations(core_charges, n_electrons)
-    fock = fock_matrix(np.asarray(core, dtype=float), np.asarray(gamma, dtype=float), np.diag(pop))
+    core = np.asarray(core, dtype=float)
+    gamma = np.asarray(gamma, dtype=float)
+    # fock_matrix(core, gamma, diag(pop)) without the N x N products of a diagonal density: the same
+    # numbers (off the diagonal P_ij = 0 leaves h_ij; on it h_ii - (P_ii / 2) gamma_ii + (gamma P)_i)
+    fock = core.copy()
+    diag = fock.ravel()[::fock.shape[0] + 1]
+    diag -= 0.5 * pop * gamma.diagonal()
+    diag += gamma @ pop
     return density(eigh(fock)[1], n_occ)
 
 

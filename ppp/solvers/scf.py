@@ -58,7 +58,7 @@ class SCFResult:
 def fock_matrix(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray) -> np.ndarray:
     """PPP Fock matrix (N, N), eV, from core h, gamma and density P (equation in the module doc)."""
     f = core - 0.5 * dens * gamma
-    f.flat[::f.shape[0] + 1] += gamma @ np.diagonal(dens)  # the diagonal, as a strided view
+    f.ravel()[::f.shape[0] + 1] += gamma @ dens.diagonal()  # the diagonal, as a strided view
     return f
 
 
@@ -376,5 +376,5 @@ def finish(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens: np.ndarray, co
     return SCFResult(
         converged=converged, iterations=int(iterations), e_elec=electronic_energy(core, fock, dens),
         mo_energy=mo_energy, mo_coeff=mo_coeff, dens=dens, fock=fock,
-        max_error=float(np.max(np.abs(err))), strategy=strategy,
+        max_error=float(err.max()), strategy=strategy,  # FP - PF is antisymmetric: max = max |.|
     )
