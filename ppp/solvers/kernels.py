@@ -1,4 +1,4 @@
-"""numba kernels for the SCF, compiled on first use: the Fock build, and the whole DIIS loop.
+"""numba kernel for the SCF, compiled on first use: the whole DIIS loop.
 
 numba is imported only when a kernel is first called (or by :func:`warm_up`), so ``import ppp`` and
 a one-molecule run never pay its start-up (1-3 s on the loaded development machine, even with a warm
@@ -6,12 +6,14 @@ cache). Compiled code is cached on disk (``cache=True``). The SCF runs its loop 
 when numba is already loaded (see ``ppp.solvers.scf.JIT_MIN_CENTRES``): a batch worker or a notebook
 that calls :func:`warm_up` once.
 
-Each kernel has a plain numpy twin (``*_reference``) that states the same mathematics in the
-obvious way; ``tests/test_kernels.py`` checks them equal on random inputs.
+The kernel's reference twin is the numpy loop of :func:`ppp.solvers.scf.iterate`, which states the same
+mathematics with numpy calls; ``tests/test_kernels.py`` checks them equal on dyes and on random models
+(fixed seeds). (An earlier kernel for the Fock build alone, 3-10 times faster than its numpy expression
+but only a few per cent of an iteration, is superseded by this one.)
 
-Measured by ``benchmarks/bench_kernels.py``: the Fock build 3-10 times faster than the numpy
-expression per call, a few per cent of an SCF iteration next to its eigensolve. The whole loop saves
-the 15-25 us of numpy calls per iteration that a dye-sized SCF spends next to a ~12 us eigensolve.
+Measured by ``benchmarks/bench_kernels.py``: the whole loop saves the 15-20 us of numpy calls per
+iteration that a dye-sized SCF spends next to a 10-30 us eigensolve; an iteration then costs its
+eigensolve plus 10-25 %.
 """
 from __future__ import annotations
 
@@ -21,42 +23,9 @@ from functools import lru_cache
 import numpy as np
 
 
-def fock_energy_reference(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray):
-    """PPP Fock matrix and electronic energy (Pople 1953; Pariser & Parr 1953).
-
-    F_ii = h_ii + 1/2 P_ii gamma_ii + sum_{j != i} P_jj gamma_ij ;  F_ij = h_ij - 1/2 P_ij gamma_ij ;
-    E = 1/2 sum_ij P_ij (h_ij + F_ij).
-
-    Returns (F (N, N) eV, E eV).
-    """
-    f = core - 0.5 * dens * gamma
-    f[np.diag_indices_from(f)] += gamma @ np.diag(dens)
-    e = 0.5 * float(np.sum(dens * (core + f)))
-    return f, e
-
-
 @lru_cache(maxsize=None)
 def _compiled():
     import numba
-
-    @numba.njit(cache=True, fastmath=False, nogil=True)
-    def fock_energy(core, gamma, dens, fock):
-        n = core.shape[0]
-        e = 0.0
-        for i in range(n):
-            e_row = 0.0  # per-row partial sums keep the rounding of E at ~sqrt(N) eps |E|
-            coul = 0.0
-            for j in range(n):
-                coul += gamma[i, j] * dens[j, j]
-                if j != i:
-                    f = core[i, j] - 0.5 * dens[i, j] * gamma[i, j]
-                    fock[i, j] = f
-                    e_row += dens[i, j] * (core[i, j] + f)
-            # diagonal: h_ii - 1/2 P_ii gamma_ii + sum_j P_jj gamma_ij  (j = i included in the sum)
-            f = core[i, i] - 0.5 * dens[i, i] * gamma[i, i] + coul
-            fock[i, i] = f
-            e += e_row + dens[i, i] * (core[i, i] + f)
-        return 0.5 * e
 
     @numba.njit(cache=True, fastmath=False, nogil=True)
     def scf_loop(core0, gamma, n_occ, dens0, max_iter, space, conv_tol, conv_tol_grad, eps,
@@ -167,7 +136,7 @@ def _compiled():
             d = np.dot(c, np.ascontiguousarray(c.T))
         return False, max_iter, d + d
 
-    return fock_energy, scf_loop
+    return scf_loop
 
 
 def scf_loop(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, max_iter: int,
@@ -196,7 +165,7 @@ def scf_loop(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray,
     gamma = np.ascontiguousarray(gamma, dtype=np.float64)
     dens0 = np.ascontiguousarray(dens0, dtype=np.float64)
     i, j, beta_ref, law, a, b, k, s_ref, r_ref, delta = extra
-    ok, it, dens = _compiled()[1](core, gamma, int(n_occ), dens0, int(max_iter), int(diis_space),
+    ok, it, dens = _compiled()(core, gamma, int(n_occ), dens0, int(max_iter), int(diis_space),
                                   float(conv_tol), float(conv_tol_grad), float(np.finfo(float).eps),
                                   np.ascontiguousarray(i, dtype=np.int64), np.ascontiguousarray(j, dtype=np.int64),
                                   np.ascontiguousarray(beta_ref, dtype=np.float64), int(law), float(a), float(b),
@@ -204,24 +173,8 @@ def scf_loop(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray,
     return bool(ok), int(it), dens
 
 
-def fock_energy(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray):
-    """numba twin of :func:`fock_energy_reference`: one pass over the N^2 entries, no temporaries.
-
-    core, gamma, dens : (N, N) float64, C-contiguous. Returns (F (N, N) eV, E eV).
-    """
-    core = np.ascontiguousarray(core, dtype=np.float64)
-    gamma = np.ascontiguousarray(gamma, dtype=np.float64)
-    dens = np.ascontiguousarray(dens, dtype=np.float64)
-    n = core.shape[0]
-    if core.shape != (n, n) or gamma.shape != (n, n) or dens.shape != (n, n):
-        raise ValueError(f"fock_energy needs three N x N matrices, got {core.shape}, {gamma.shape}, {dens.shape}")
-    fock = np.empty_like(core)
-    e = _compiled()[0](core, gamma, dens, fock)
-    return fock, float(e)
-
-
 def warm_up() -> None:
-    """Import numba and load (or compile) the kernels now; afterwards the SCF uses them for large
-    systems. For long-running processes that handle many large molecules."""
-    fock_energy(np.eye(2), np.eye(2), np.eye(2))
+    """Import numba and load (or compile) the kernel now; afterwards the SCF loop runs compiled. For
+    long-running processes that handle many molecules (1.4 s with a warm cache, see
+    benchmarks/bench_coldstart.py)."""
     scf_loop(np.diag([-1.0, 1.0]), np.eye(2), 1, np.diag([2.0, 0.0]), 2, 8, 1e-11, 1e-9)
