@@ -149,3 +149,13 @@ def test_reaction_field_core_stays_on_the_numpy_loop():
     core_of = vb.CoreOfBondOrders(m.core.copy(), i, j, m.core[i, j].copy(), st, np.diagonal(m.core).copy(),
                                   lambda p: 0.01 * np.diagonal(p))
     assert core_of.kernel_form is None
+
+
+@pytest.mark.parametrize("bond_order_beta", [False, True])
+def test_non_convergence_with_the_kernel_is_an_error_not_numbers(bond_order_beta):
+    """With numba loaded (the kernel runs), an SCF budget too small still ends in ConvergenceError."""
+    import ppp
+
+    kernels.warm_up()
+    with pytest.raises(ppp.ConvergenceError, match="did not converge"):
+        ppp.compute("C=CC=CC=CC=C", max_iter=1, bond_order_beta=bond_order_beta)
