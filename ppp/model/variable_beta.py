@@ -156,8 +156,9 @@ class CoreOfBondOrders:
 
 def variable_bonds(types, bonds: np.ndarray, settings: BondOrderBeta) -> np.ndarray:
     """Boolean mask (M,) of the bonds whose beta follows the bond order."""
-    wanted = {tuple(sorted(p)) for p in settings.pairs}
-    return np.array([tuple(sorted((types[i], types[j]))) in wanted for i, j in bonds], dtype=bool)
+    wanted = {(a, b) for a, b in settings.pairs} | {(b, a) for a, b in settings.pairs}  # either order
+    return np.array([(types[i], types[j]) in wanted for i, j in np.asarray(bonds).reshape(-1, 2).tolist()],
+                    dtype=bool)
 
 
 @dataclass(frozen=True)
