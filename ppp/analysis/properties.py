@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import lru_cache
+from typing import NamedTuple
 
 import numpy as np
 
@@ -35,7 +36,7 @@ def dipole_integrals(mo_coeff: np.ndarray, n_occ: int, coords: np.ndarray) -> np
     contraction, which numpy would evaluate as a plain loop."""
     co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
     coords = np.asarray(coords, dtype=float)
-    return np.stack([co.T @ (coords[:, x, None] * cv) for x in range(3)])
+    return np.matmul(co.T, coords.T[:, :, None] * cv)  # the three products as one stacked call
 
 
 def oscillator_strengths(energies_ev: np.ndarray, tdm_eangstrom: np.ndarray) -> np.ndarray:
@@ -95,9 +96,9 @@ def orbital_label(p: int, n_occ: int) -> str:
     return "LUMO" if k == 0 else f"LUMO+{k}"
 
 
-@dataclass(frozen=True, slots=True)  # slots: cheaper to create, dozens per molecule
-class Configuration:
-    """One singly excited configuration i -> a and its weight |X_ia|^2 in a state."""
+class Configuration(NamedTuple):
+    """One singly excited configuration i -> a and its weight |X_ia|^2 in a state (immutable; a named
+    tuple: a third of the cost of a frozen dataclass to create, and dozens are made per molecule)."""
 
     occupied: int  # 0-based orbital index
     virtual: int
@@ -128,20 +129,21 @@ def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: floa
     else:  # short rows: one stable sort of each whole row is cheaper than the selection's calls
         order = np.argsort(-w, axis=1, kind="stable")[:, :m]
     weights = w[rows, order]
+    keep = weights >= min_weight  # by weight, largest first: the kept ones lead each row ...
+    keep[:, 0] = True  # ... and the largest is kept whatever its weight
     occ, vir = np.divmod(order, n_vir)
-    out = []
-    for o_row, v_row, wt_row in zip(occ.tolist(), (vir + n_occ).tolist(), weights.tolist()):
-        confs = []
-        for i, a, wt in zip(o_row, v_row, wt_row):
-            if wt < min_weight and confs:
-                break
-            confs.append(Configuration(i, a, wt, _label(i, n_occ), _label(a, n_occ)))
-        out.append(tuple(confs))
-    return out
+    labels = _labels(n_occ, n_occ + n_vir)
+    new = tuple.__new__  # Configuration's own constructor without its argument handling
+    return [tuple([new(Configuration, (i, a, wt, labels[i], labels[a]))
+                   for i, a, wt, kp in zip(o_row, v_row, wt_row, k_row) if kp])
+            for o_row, v_row, wt_row, k_row in zip(occ.tolist(), (vir + n_occ).tolist(), weights.tolist(),
+                                                   keep.tolist())]
 
 
-#: orbital_label with its (few hundred distinct) answers kept: state records ask for the same ones
-_label = lru_cache(maxsize=4096)(orbital_label)
+@lru_cache(maxsize=64)
+def _labels(n_occ: int, n_orbitals: int) -> tuple[str, ...]:
+    """:func:`orbital_label` of every orbital, kept per (n_occ, N): state records ask for the same ones."""
+    return tuple(orbital_label(p, n_occ) for p in range(n_orbitals))
 
 
 @dataclass(frozen=True)
@@ -169,7 +171,7 @@ class GroundState:
 
 def ground_state(dens: np.ndarray, core_charges: np.ndarray, coords: np.ndarray, bonds: np.ndarray) -> GroundState:
     """pi populations, charges, Coulson bond orders (Coulson 1939) and the pi dipole moment."""
-    pop = np.diag(dens).copy()
+    pop = dens.diagonal().copy()
     q = np.asarray(core_charges, dtype=float) - pop
     bonds = np.asarray(bonds, dtype=int).reshape(-1, 2)
     orders = dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)

@@ -130,7 +130,7 @@ def beta_matrix(types, bonds: np.ndarray, params: ParameterSet, atom_labels=None
     """Resonance integrals (N, N), eV, for the bonded pairs; ParameterError names a missing pair."""
     n = len(types)
     beta = np.zeros((n, n))
-    for i, j in np.asarray(bonds).reshape(-1, 2):
+    for i, j in np.asarray(bonds).reshape(-1, 2).tolist():  # plain ints: cheaper to index with
         value = params.beta_for(types[i], types[j])
         if value is None:
             where = ""

@@ -121,10 +121,44 @@ def _factor_function(settings: BondOrderBeta):
     return lambda order: np.exp(-((a - b * order) - r_ref) / delta)
 
 
+class CoreOfBondOrders:
+    """The core Hamiltonian as a function of the density, for the joint SCF run: the start core with the
+    varied betas rebuilt from the bond orders P_ij (steps 1-3 of the module doc) and, with a reaction
+    field, the diagonal h_ii + V_i(P).
+
+    core0 : (N, N) start core, eV;  i, j : (K,) the varied bonds;  beta_ref : (K,) their table betas, eV
+
+    ``kernel_form`` states the update as plain numbers for the compiled SCF loop
+    (:func:`ppp.solvers.kernels.scf_loop`, which evaluates the same law at every iteration), or is None
+    when a reaction field takes part (that stays on the numpy loop).
+    """
+
+    def __init__(self, core0, i, j, beta_ref, settings: BondOrderBeta, diag0=None, diag_update=None):
+        self.core0, self.i, self.j, self.beta_ref = core0, i, j, beta_ref
+        self.factor = _factor_function(settings)
+        self.diag0, self.diag_update = diag0, diag_update
+        self.kernel_form = None
+        if diag_update is None:
+            k = settings.slater_exponent / BOHR_ANGSTROM
+            s_ref = float(slater_pi_overlap(settings.reference_length, settings.slater_exponent))
+            self.kernel_form = (core0, np.asarray(i, dtype=np.int64), np.asarray(j, dtype=np.int64),
+                                np.asarray(beta_ref, dtype=float), LAWS.index(settings.law),
+                                settings.length_intercept, settings.length_slope, k, s_ref,
+                                settings.reference_length, settings.decay_length)
+
+    def __call__(self, dens: np.ndarray) -> np.ndarray:
+        c = self.core0.copy()
+        c[self.i, self.j] = c[self.j, self.i] = self.beta_ref * self.factor(dens[self.i, self.j])
+        if self.diag_update is not None:
+            np.fill_diagonal(c, self.diag0 + self.diag_update(dens))
+        return c
+
+
 def variable_bonds(types, bonds: np.ndarray, settings: BondOrderBeta) -> np.ndarray:
     """Boolean mask (M,) of the bonds whose beta follows the bond order."""
-    wanted = {tuple(sorted(p)) for p in settings.pairs}
-    return np.array([tuple(sorted((types[i], types[j]))) in wanted for i, j in bonds], dtype=bool)
+    wanted = {(a, b) for a, b in settings.pairs} | {(b, a) for a, b in settings.pairs}  # either order
+    return np.array([(types[i], types[j]) in wanted for i, j in np.asarray(bonds).reshape(-1, 2).tolist()],
+                    dtype=bool)
 
 
 @dataclass(frozen=True)
@@ -197,14 +231,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, types, bonds: np.nd
     loose = dict(scf_kwargs, conv_tol=INNER_TOL_ENERGY, conv_tol_grad=INNER_TOL_GRAD)
     if scf_iterate is not None:
         core0 = core.copy()
-        factor = _factor_function(settings)
-
-        def core_of(d):
-            c = core0.copy()
-            c[i, j] = c[j, i] = beta_ref * factor(d[i, j])
-            if diag_update is not None:
-                np.fill_diagonal(c, diag0 + diag_update(d))
-            return c
+        core_of = CoreOfBondOrders(core0, i, j, beta_ref, settings, diag0, diag_update)
 
         start = dens
         if start is None:

@@ -25,7 +25,7 @@ from __future__ import annotations
 import numpy as np
 from rdkit import Chem
 
-from .scf import density, eigh, fock_matrix
+from .scf import density, eigh
 
 
 def localized_density(n_pi: np.ndarray, double_bonds: np.ndarray) -> np.ndarray | None:
@@ -43,11 +43,10 @@ def localized_density(n_pi: np.ndarray, double_bonds: np.ndarray) -> np.ndarray 
     n_pi = np.asarray(n_pi, dtype=float)
     n = n_pi.shape[0]
     dens = np.diag(n_pi)
-    partners = np.zeros(n, dtype=int)
-    for i, j in np.asarray(double_bonds, dtype=int).reshape(-1, 2):
-        dens[i, j] = dens[j, i] = 1.0
-        partners[i] += 1
-        partners[j] += 1
+    pairs = np.asarray(double_bonds, dtype=int).reshape(-1, 2)
+    dens[pairs[:, 0], pairs[:, 1]] = 1.0
+    dens[pairs[:, 1], pairs[:, 0]] = 1.0
+    partners = np.bincount(pairs.ravel(), minlength=n)  # double bonds at each centre
     single = n_pi == 1
     if np.any(partners[single] != 1) or np.any(partners[~single] != 0):
         return None
@@ -72,7 +71,14 @@ def atomic_start(core: np.ndarray, gamma: np.ndarray, core_charges: np.ndarray, 
     core, gamma : (N, N) eV;  core_charges : (N,);  n_electrons : pi electrons;  n_occ : doubly occupied
     """
     pop = atomic_populations(core_charges, n_electrons)
-    fock = fock_matrix(np.asarray(core, dtype=float), np.asarray(gamma, dtype=float), np.diag(pop))
+    core = np.asarray(core, dtype=float)
+    gamma = np.asarray(gamma, dtype=float)
+    # fock_matrix(core, gamma, diag(pop)) without the N x N products of a diagonal density: the same
+    # numbers (off the diagonal P_ij = 0 leaves h_ij; on it h_ii - (P_ii / 2) gamma_ii + (gamma P)_i)
+    fock = core.copy()
+    diag = fock.ravel()[::fock.shape[0] + 1]
+    diag -= 0.5 * pop * gamma.diagonal()
+    diag += gamma @ pop
     return density(eigh(fock)[1], n_occ)
 
 

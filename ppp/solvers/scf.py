@@ -58,7 +58,7 @@ class SCFResult:
 def fock_matrix(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray) -> np.ndarray:
     """PPP Fock matrix (N, N), eV, from core h, gamma and density P (equation in the module doc)."""
     f = core - 0.5 * dens * gamma
-    f.flat[::f.shape[0] + 1] += gamma @ np.diagonal(dens)  # the diagonal, as a strided view
+    f.ravel()[::f.shape[0] + 1] += gamma @ dens.diagonal()  # the diagonal, as a strided view
     return f
 
 
@@ -67,39 +67,12 @@ def electronic_energy(core: np.ndarray, fock: np.ndarray, dens: np.ndarray) -> f
     return 0.5 * float(np.vdot(dens, core + fock))
 
 
-#: The Fock matrix and energy come from the fused numba kernel (:func:`ppp.solvers.kernels.fock_energy`,
-#: 3-10 times faster than the numpy expression at every size, see benchmarks/bench_kernels.py) from
-#: this size on - provided numba is already loaded in the process. Loading it costs 1-3 s (import and
-#: LLVM set-up, even with a warm cache) against savings of 0.03-10 ms per SCF iteration, so it pays
-#: only in a process that handles many molecules and calls :func:`ppp.solvers.kernels.warm_up` once
-#: (a batch worker); a one-molecule run never loads numba.
+#: The plain DIIS loop (no level shift, damping or density-dependent core) runs in the numba kernel
+#: :func:`ppp.solvers.kernels.scf_loop` from this size on - provided numba is already loaded in the
+#: process. Loading it costs 1-3 s (import and LLVM set-up, even with a warm cache) against savings of
+#: 15-25 us per SCF iteration at dye size, so it pays only in a process that handles many molecules and
+#: calls :func:`ppp.solvers.kernels.warm_up` once (a batch worker); a one-molecule run never loads numba.
 JIT_MIN_CENTRES = 1
-
-
-def _fock_energy_numpy(core, gamma, dens):
-    fock = fock_matrix(core, gamma, dens)
-    return fock, electronic_energy(core, fock, dens)
-
-
-def _numpy_builder(gamma: np.ndarray):
-    """(core, gamma, dens) -> (F, E) for one fixed gamma: the module-doc equations, with gamma / 2 and
-    the diagonal stride prepared once (a few microseconds less per SCF iteration at dye size)."""
-    half = 0.5 * gamma
-    step = gamma.shape[0] + 1
-
-    def build(core, gamma_, dens):
-        f = core - dens * half
-        f.ravel()[::step] += gamma @ dens.diagonal()  # the diagonal, as a strided view of f
-        return f, 0.5 * (float(np.vdot(dens, core)) + float(np.vdot(dens, f)))
-    return build
-
-
-def fock_builder(n_centres: int):
-    """Function (core, gamma, dens) -> (F, E) to use for a problem of this size (see JIT_MIN_CENTRES)."""
-    if n_centres >= JIT_MIN_CENTRES and "numba" in sys.modules:
-        from .kernels import fock_energy
-        return fock_energy
-    return _fock_energy_numpy
 
 
 def density(mo_coeff: np.ndarray, n_occ: int) -> np.ndarray:
@@ -129,59 +102,87 @@ def commutator(fock: np.ndarray, dens: np.ndarray) -> np.ndarray:
 class _DIIS:
     """Pulay's (1980, 1982) direct inversion in the iterative subspace on the error FP - PF.
 
-    Fock matrices and error vectors live in preallocated ring buffers, and the overlap matrix
-    B_ij = <e_i|e_j> is extended by one row per iteration (one matrix-vector product, O(n N^2) for n
-    stored vectors, instead of O(n^2 N^2) for rebuilding it); the extrapolation is one more product.
-    The bordered DIIS matrices [[B, -1], [-1, 0]] and right-hand sides are preallocated per subspace
-    size, so an extrapolation costs a handful of numpy calls (it runs at every SCF iteration, where at
-    dye size each call counts next to a ~10 us eigensolve).
+    Fock matrices and error vectors live in preallocated ring buffers (``space`` slots of N x N). The
+    SCF loop writes each new pair straight into its slot (:meth:`target`, then :meth:`commit`), so no
+    copy is made; :meth:`push` copies a given pair in (for callers that hold their own arrays). The
+    overlap matrix B_ij = <e_i|e_j> is extended by one row per iteration (one matrix-vector product,
+    O(n N^2) for n stored vectors, instead of O(n^2 N^2) for rebuilding it); the extrapolation is one
+    more product. The bordered DIIS matrices [[B, -1], [-1, 0]] and right-hand sides are made once per
+    subspace size, on first use, so an extrapolation costs a handful of numpy calls (it runs at every
+    SCF iteration, where at dye size each call counts next to a ~10 us eigensolve).
+    The extrapolation does not depend on the scale of the error vectors (B is normalised), so the SCF
+    may store any fixed multiple of FP - PF.
     """
 
-    def __init__(self, space: int):
+    def __init__(self, space: int, n: int | None = None):
         self.space = space
         self.slots: list[int] = []  # ring-buffer slots in insertion order
-        self._f = self._e = None
+        self._norm = [0.0] * space  # B_ss of each slot
         self._b = np.zeros((space, space))
-        self._a = [None] + [_bordered(n) for n in range(1, space + 1)]
-        self._rhs = [None] + [np.concatenate([np.zeros(n), [-1.0]]) for n in range(1, space + 1)]
+        self._a: list = [None] * (space + 1)
+        self._rhs: list = [None] * (space + 1)
+        self._f = self._e = None
+        self._pending = 0
+        self.last_norm = np.inf  # B_ss of the pair stored last
+        if n is not None:
+            self._allocate(n)
+
+    def _allocate(self, n: int) -> None:
+        self._f = np.empty((self.space, n * n))
+        self._e = np.empty((self.space, n * n))
+        self._shape = (n, n)
+        self._fv = [row.reshape(n, n) for row in self._f]  # N x N views of the slots
+        self._ev = [row.reshape(n, n) for row in self._e]
+        self._dv = [row[::n + 1] for row in self._f]  # the diagonals of the Fock slots
 
     @property
     def focks(self) -> list[np.ndarray]:
-        return [self._f[k].reshape(self._shape) for k in self.slots]
+        return [self._fv[k] for k in self.slots]
 
     @property
     def b(self) -> np.ndarray:
         """B_ij over the stored vectors in insertion order."""
         return self._b[np.ix_(self.slots, self.slots)]
 
-    def push(self, fock: np.ndarray, err: np.ndarray) -> None:
-        if self._f is None:
-            self._f = np.empty((self.space, fock.size))
-            self._e = np.empty((self.space, err.size))
-            self._shape = fock.shape
+    def target(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(F, e, diagonal of F) views of the slot the next :meth:`commit` stores (the oldest when full)."""
+        slot = self.slots[0] if len(self.slots) == self.space else len(self.slots)
+        self._pending = slot
+        return self._fv[slot], self._ev[slot], self._dv[slot]
+
+    def commit(self) -> None:
+        """Store the pair written into the views of :meth:`target`."""
+        slot = self._pending
         if len(self.slots) == self.space:
-            slot = self.slots.pop(0)  # overwrite the oldest
-        else:
-            slot = len(self.slots)
+            self.slots.pop(0)  # overwrite the oldest
         self.slots.append(slot)
-        self._f[slot] = fock.ravel()
-        self._e[slot] = err.ravel()
         n = len(self.slots)  # slots 0..n-1 are in use (filled in order, then overwritten in turn)
         row = self._e[:n] @ self._e[slot]
         self._b[slot, :n] = row
         self._b[:n, slot] = row
+        self.last_norm = self._norm[slot] = float(row[slot])
+
+    def push(self, fock: np.ndarray, err: np.ndarray) -> None:
+        """Store a copy of one (Fock matrix, error) pair."""
+        if self._f is None:
+            self._allocate(fock.shape[0])
+        f, e, _ = self.target()
+        f[...] = fock
+        e[...] = err
+        self.commit()
 
     def extrapolate(self) -> np.ndarray:
         n = len(self.slots)  # the extrapolation does not depend on the order of the vectors
-        bb = self._b[:n, :n]
-        a = self._a[n]
+        a, rhs = self._a[n], self._rhs[n]
+        if a is None:
+            a = self._a[n] = _bordered(n)
+            rhs = self._rhs[n] = np.concatenate([np.zeros(n), [-1.0]])
         # B is a Gram matrix: its largest entry lies on the diagonal (Cauchy-Schwarz); scaled to 1
-        scale = bb.diagonal().max()
+        scale = max(self._norm[:n])
         if scale > 0:
-            np.divide(bb, scale, out=a[:n, :n])
+            np.divide(self._b[:n, :n], scale, out=a[:n, :n])
         else:
-            a[:n, :n] = bb
-        rhs = self._rhs[n]
+            a[:n, :n] = self._b[:n, :n]
         _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a)
         if info != 0 or not coef @ coef <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
             try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
@@ -189,7 +190,7 @@ class _DIIS:
             except np.linalg.LinAlgError:
                 coef = None
             if coef is None or not np.isfinite(coef).all():
-                return self._f[self.slots[-1]].reshape(self._shape)
+                return self._fv[self.slots[-1]]
         return (coef[:n] @ self._f[:n]).reshape(self._shape)
 
 
@@ -208,45 +209,80 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
 
     Work per iteration: one O(N^2) Fock build, one matrix product for the error, one eigensolve.
     core_update : optional callable dens -> core, evaluated at every iteration, for a core Hamiltonian
-        that depends on the density (bond-order-dependent beta); at convergence core and density are
+        that depends on the density (bond-order-dependent beta, e.g.
+        :class:`ppp.model.variable_beta.CoreOfBondOrders`, whose ``kernel_form`` lets the compiled loop
+        evaluate the same update); at convergence core and density are
         then consistent with each other as well: the core is the one of the returned density, and the
         error FP - PF is that of the fixed-core SCF on it. DIIS then extrapolates Fock matrices that
         include the core, i.e. one DIIS on the joint density/core error.
     core_tol : with ``core_update``, convergence also requires max |change of the core| between the
         last two iterations below this (eV)
+
+    The loop carries the half density D = P / 2 = C_occ C_occ^T, which saves a scaling per iteration:
+    with it F = h - gamma o D + diag(2 gamma diag(D)), E = sum_ij D_ij (h_ij + F_ij) and
+    FP - PF = 2 (FD - DF). Scaling by 2 is exact in binary floating point, so every number (Fock
+    matrices, energies, errors, DIIS coefficients, densities) is bit for bit that of the same loop on P
+    (``tests/scf_reference.py`` keeps that loop and checks it). Each Fock matrix and error is written
+    straight into its DIIS slot. When numba is loaded, the plain DIIS case runs as one compiled call
+    (:func:`ppp.solvers.kernels.scf_loop`, see ``JIT_MIN_CENTRES``); this loop is its reference.
     """
-    dens = dens0
-    e_old = np.inf
-    diis = _DIIS(diis_space) if use_diis else None
     n = core.shape[0]
-    build = fock_builder(n)
-    if build is _fock_energy_numpy:  # the same expression with the constant parts prepared once
-        build = _numpy_builder(gamma)
+    if use_diis and not level_shift and not damping and n >= JIT_MIN_CENTRES and "numba" in sys.modules:
+        form = getattr(core_update, "kernel_form", None)
+        if core_update is None or form is not None:
+            from .kernels import scf_loop
+            return scf_loop(core, gamma, n_occ, dens0, max_iter, diis_space, conv_tol, conv_tol_grad,
+                            bond_beta=form, core_tol=core_tol)
+    d = 0.5 * np.asarray(dens0, dtype=float)
+    gamma2 = gamma + gamma
+    ring = _DIIS(diis_space if use_diis else 1, n)
+    fd = np.empty((n, n))
+    eye = np.eye(n) if level_shift else None
     core_change = 0.0
+    # With DIIS, |FD - DF|^2 comes with the new row of B; max |x| >= |x|_F / N, so while |FD - DF|_F
+    # exceeds N conv_tol_grad / 2 (with a margin for its rounding) the error test must fail and the
+    # energy is not needed yet. The energy of the iteration before is then computed when first needed,
+    # from its density, core and Fock matrix (still in the ring): the same numbers in the same order.
+    lazy = use_diis and diis_space >= 2
+    gate = (0.5 * n * conv_tol_grad) ** 2 * (1.0 + 1e-6)
+    e_old = np.inf  # energy of the iteration before; None when not computed
+    prev = None
     for it in range(1, max_iter + 1):
         if core_update is not None:
-            new_core = core_update(dens)
+            new_core = core_update(d + d)
             core_change = float(np.abs(new_core - core).max()) if it > 1 else np.inf
             core = new_core
-        fock, e = build(core, gamma, dens)
-        err = commutator(fock, dens)
-        max_err = float(err.max())  # FP - PF is antisymmetric: its largest entry is its largest |entry|
-        # the energy test allows for rounding in E (|E| ~ 10^4 eV at 1,000 centres)
-        if (abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and max_err < conv_tol_grad
-                and core_change < core_tol):
-            return True, it, dens
+        fock, err, fdiag = ring.target()
+        np.multiply(d, gamma, out=fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
+        np.subtract(core, fock, out=fock)
+        fdiag += gamma2 @ d.diagonal()  # the diagonal, as a strided view
+        np.matmul(fock, d, out=fd)
+        np.subtract(fd, fd.T, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
+        if use_diis:
+            ring.commit()
+        if not lazy or ring.last_norm < gate:
+            e = float(np.vdot(d, core)) + float(np.vdot(d, fock))
+            if e_old is None:
+                pd, pc, pf = prev
+                e_old = float(np.vdot(pd, pc)) + float(np.vdot(pd, pf))
+            # the energy test allows for rounding in E (|E| ~ 10^4 eV at 1,000 centres); FP - PF is
+            # antisymmetric: its largest entry is its largest |entry|
+            if (abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and 2.0 * float(err.max()) < conv_tol_grad
+                    and core_change < core_tol):
+                return True, it, d + d
+        else:
+            e = None
         e_old = e
+        prev = (d, core, fock)
         f_use = fock
-        if diis is not None:
-            diis.push(fock, err)
-            if len(diis.slots) >= 2:
-                f_use = diis.extrapolate()
+        if use_diis and len(ring.slots) >= 2:
+            f_use = ring.extrapolate()
         if level_shift:
-            f_use = f_use + level_shift * (np.eye(n) - 0.5 * dens)
-        _, c = eigh(f_use)
-        new = density(c, n_occ)
-        dens = (1.0 - damping) * new + damping * dens if damping else new
-    return False, max_iter, dens
+            f_use = f_use + level_shift * (eye - d)  # shift of the virtual space, I - P/2 (Saunders & Hillier 1973)
+        c = eigh(f_use)[1][:, :n_occ]
+        new = c @ c.T
+        d = (1.0 - damping) * new + damping * d if damping else new
+    return False, max_iter, d + d
 
 
 def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 100,
@@ -340,5 +376,5 @@ def finish(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens: np.ndarray, co
     return SCFResult(
         converged=converged, iterations=int(iterations), e_elec=electronic_energy(core, fock, dens),
         mo_energy=mo_energy, mo_coeff=mo_coeff, dens=dens, fock=fock,
-        max_error=float(np.max(np.abs(err))), strategy=strategy,
+        max_error=float(err.max()), strategy=strategy,  # FP - PF is antisymmetric: max = max |.|
     )

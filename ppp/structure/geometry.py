@@ -55,6 +55,9 @@ def scale_to_bond_length(pos: np.ndarray, bonds: np.ndarray, bond_length: float)
     return pos * (bond_length / mean)
 
 
+_AXES = np.arange(3)
+
+
 def principal_frame(pos: np.ndarray) -> np.ndarray:
     """Rotate (N, 3) coordinates into the principal-axis frame of the points (unit masses).
 
@@ -67,11 +70,11 @@ def principal_frame(pos: np.ndarray) -> np.ndarray:
     cov = centred.T @ centred
     w, v = np.linalg.eigh(cov)
     v = v[:, ::-1]  # descending spread
-    for k in range(3):
-        j = np.argmax(np.abs(v[:, k]))
-        if v[j, k] < 0:
-            v[:, k] = -v[:, k]
-    if np.linalg.det(v) < 0:  # keep a right-handed frame
+    # sign of each axis: its component of largest magnitude positive (argmax takes the first of ties)
+    big = np.argmax(np.abs(v), axis=0)
+    v = v * np.where(v[big, _AXES] < 0, -1.0, 1.0)
+    (a, b, c), (d, e, f), (g, h, i) = v.tolist()
+    if a * (e * i - f * h) - b * (d * i - f * g) + c * (d * h - e * g) < 0:  # keep a right-handed frame
         v[:, 2] = -v[:, 2]
     out = centred @ v
     out[np.abs(out) < 1e-12] = 0.0

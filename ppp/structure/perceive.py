@@ -80,15 +80,13 @@ def _sigma_bonds(atom: Chem.Atom) -> int:
     return atom.GetDegree() + atom.GetTotalNumHs()
 
 
-def _is_hypervalent(atom: Chem.Atom) -> bool:
-    return atom.GetSymbol() in _NON_CONJUGATING_CENTRES and (
-        atom.GetSymbol() == "P" or _sigma_bonds(atom) > 2 or atom.GetTotalValence() > 2
-    )
-
-
 def centre_type(atom: Chem.Atom) -> str:
     """Type name of a pi-centre from its element and number of sigma bonds."""
-    sym, nsig = atom.GetSymbol(), _sigma_bonds(atom)
+    return _centre_type(atom.GetSymbol(), _sigma_bonds(atom), atom.GetIdx())
+
+
+def _centre_type(sym: str, nsig: int, idx: int) -> str:
+    """:func:`centre_type` from the element, the number of sigma bonds and the atom index."""
     if sym == "C" and nsig <= 3:
         return "C"
     if sym == "N" and nsig <= 3:
@@ -101,7 +99,7 @@ def centre_type(atom: Chem.Atom) -> str:
         return sym
     if sym == "B" and nsig == 3:
         return "B"
-    raise UnsupportedElementError(f"{_atom_name(atom)} with {nsig} sigma bonds is not covered by the pi model")
+    raise UnsupportedElementError(f"atom {idx + 1} ({sym}) with {nsig} sigma bonds is not covered by the pi model")
 
 
 #: Core charge Z of each centre type: pi electrons it gives to the neutral pi-system.
@@ -109,9 +107,9 @@ STRUCTURAL_Z = {"C": 1, "N.aza": 1, "N.amino": 2, "O.oxo": 1, "O.oxa": 2, "S.thi
                  "S.thioxo": 1, "F": 2, "Cl": 2, "Br": 2, "I": 2, "B": 0}
 
 
-def _is_donor(atom: Chem.Atom) -> bool:
-    """Saturated-looking atom with a p lone pair or empty p orbital that can join the system."""
-    sym, nsig, fc = atom.GetSymbol(), _sigma_bonds(atom), atom.GetFormalCharge()
+def _donor(sym: str, nsig: int, fc: int) -> bool:
+    """Saturated-looking atom (element, sigma bonds, formal charge) with a p lone pair or empty p orbital
+    that can join the system."""
     if sym == "N":
         return (nsig == 3 and fc == 0) or (nsig == 2 and fc == -1)
     if sym == "O":
@@ -146,31 +144,42 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     except Exception:
         raise ParseError("cannot assign a Kekule structure to the aromatic rings") from None
 
+    # every RDKit property is read once per atom and bond into plain lists (each RDKit call costs about
+    # as much as a few lines of Python; the rules below then run on the lists)
     n_atoms = kek.GetNumAtoms()
     all_atoms = [kek.GetAtomWithIdx(i) for i in range(n_atoms)]
+    sym = [a.GetSymbol() for a in all_atoms]
+    nsig = [a.GetDegree() + a.GetTotalNumHs() for a in all_atoms]
+    charge = [a.GetFormalCharge() for a in all_atoms]
     all_bonds = [kek.GetBondWithIdx(i) for i in range(kek.GetNumBonds())]
     ends = [(b.GetBeginAtomIdx(), b.GetEndAtomIdx()) for b in all_bonds]
+    order = [b.GetBondType() for b in all_bonds]
     neighbours: list[list[int]] = [[] for _ in range(n_atoms)]  # plain lists: cheaper than RDKit calls
     for i, j in ends:
         neighbours[i].append(j)
         neighbours[j].append(i)
+
+    def hypervalent(i: int) -> bool:  # _is_hypervalent on the lists
+        return sym[i] in _NON_CONJUGATING_CENTRES and (
+            sym[i] == "P" or nsig[i] > 2 or all_atoms[i].GetTotalValence() > 2)
+
     multiple = (Chem.BondType.DOUBLE, Chem.BondType.TRIPLE)
     unsaturated = [False] * n_atoms
-    for bond in all_bonds:
-        if bond.GetBondType() not in multiple:
+    for (ia, ib), bt in zip(ends, order):
+        if bt not in multiple:
             continue
-        a, b = bond.GetBeginAtom(), bond.GetEndAtom()
-        if _is_hypervalent(a) or _is_hypervalent(b):
+        if hypervalent(ia) or hypervalent(ib):
             continue  # S=O / P=O of sulfones, sulfonates, phosphonates: non-conjugating
-        for x, y in ((a, b), (b, a)):
-            if x.GetSymbol() not in _MULTIPLE_BOND_ELEMENTS:
+        for x, y in ((ia, ib), (ib, ia)):
+            if sym[x] not in _MULTIPLE_BOND_ELEMENTS:
                 raise UnsupportedElementError(
-                    f"{_atom_name(x)}: multiple bond to {_atom_name(y)} is not covered by the pi model")
-        unsaturated[a.GetIdx()] = unsaturated[b.GetIdx()] = True
+                    f"atom {x + 1} ({sym[x]}): multiple bond to atom {y + 1} ({sym[y]}) is not covered by the "
+                    f"pi model")
+        unsaturated[ia] = unsaturated[ib] = True
 
     in_pi = list(unsaturated)
-    for i, atom in enumerate(all_atoms):
-        if unsaturated[i] or not _is_donor(atom):
+    for i in range(n_atoms):
+        if unsaturated[i] or not _donor(sym[i], nsig[i], charge[i]):
             continue
         if any(unsaturated[j] for j in neighbours[i]):
             in_pi[i] = True
@@ -196,24 +205,25 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     comp = np.array(comp)
 
     systems = []
+    double = Chem.BondType.DOUBLE
     for c in range(n_comp):
         idx = np.flatnonzero(comp == c)
-        local = {int(a): k for k, a in enumerate(idx)}
-        atoms = [all_atoms[a] for a in idx.tolist()]
-        types = tuple(centre_type(a) for a in atoms)
+        members = idx.tolist()
+        local = {a: k for k, a in enumerate(members)}
+        types = tuple(_centre_type(sym[a], nsig[a], a) for a in members)
         z = np.array([STRUCTURAL_Z[t] for t in types], dtype=int)
-        fc = np.array([a.GetFormalCharge() for a in atoms], dtype=int)
+        fc = np.array([charge[a] for a in members], dtype=int)
         n_pi = z - fc
-        for a, n in zip(atoms, n_pi):
+        for a, n in zip(members, n_pi.tolist()):
             if not 0 <= n <= 2:
                 raise UnsupportedError(
-                    f"{_atom_name(a)} with formal charge {a.GetFormalCharge():+d} would hold {n} pi electrons")
+                    f"atom {a + 1} ({sym[a]}) with formal charge {charge[a]:+d} would hold {n} pi electrons")
         bonds, doubles = [], []
-        for b, (bi, bj) in zip(all_bonds, ends):
+        for bt, (bi, bj) in zip(order, ends):
             i, j = local.get(bi), local.get(bj)
             if i is not None and j is not None:
                 bonds.append((min(i, j), max(i, j)))
-                if b.GetBondType() == Chem.BondType.DOUBLE:
+                if bt == double:
                     doubles.append((i, j))
         bonds.sort()
         n_el = int(n_pi.sum())
@@ -224,7 +234,7 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
         if n_el == 0 or n_el >= 2 * len(idx):
             raise UnsupportedError(f"{label} has {n_el} pi electrons: no excitation possible")
         systems.append(PiSystem(
-            atom_indices=idx.astype(int), elements=tuple(a.GetSymbol() for a in atoms), types=types,
+            atom_indices=idx.astype(int), elements=tuple(sym[a] for a in members), types=types,
             core_charges=z, n_pi=n_pi.astype(int), bonds=np.array(bonds, dtype=int).reshape(-1, 2),
             n_electrons=n_el, charge=int(z.sum()) - n_el,
             double_bonds=np.array(doubles, dtype=int).reshape(-1, 2),
