@@ -1,7 +1,8 @@
-"""The per-molecule time limit of batch workers (ppp.batch.worker): a watchdog thread that raises
-MoleculeTimeout in the computing thread. Laws checked: a pending timeout never leaks into the next
-molecule, and arming/disarming works under a profiler (sys.setprofile), where an earlier version spun
-forever."""
+"""Batch worker processes: how they start (ppp.batch.runner) and their per-molecule time limit
+(ppp.batch.worker: a watchdog thread that raises MoleculeTimeout in the computing thread). Laws
+checked: workers start in a way that gives them the parent's numerical path only when it is the
+command line's; a pending timeout never leaks into the next molecule; arming/disarming works under a
+profiler (sys.setprofile), where an earlier version spun forever."""
 from __future__ import annotations
 
 import subprocess
@@ -9,7 +10,7 @@ import sys
 import textwrap
 import time
 
-from ppp.batch import worker
+from ppp.batch import runner, worker
 
 
 def test_a_timeout_at_the_deadline_never_leaks_past_disarm():
@@ -70,3 +71,12 @@ def test_arm_and_disarm_under_a_profiler_do_not_hang():
     """)
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60)
     assert out.returncode == 0 and out.stdout.strip() == "done", out.stderr
+
+
+def test_workers_are_forked_on_linux_unless_the_parent_has_numba_loaded(monkeypatch):
+    linux = sys.platform.startswith("linux")
+    monkeypatch.delitem(sys.modules, "numba", raising=False)
+    assert runner._pool_context().get_start_method() == ("fork" if linux else "spawn")
+    # a parent with numba loaded would hand its workers the compiled SCF loop: spawn clean ones
+    monkeypatch.setitem(sys.modules, "numba", object())
+    assert runner._pool_context().get_start_method() == "spawn"

@@ -174,9 +174,13 @@ def _pool_context():
     when the pool starts (the pool launches all its workers before its manager thread), a worker never
     touches the parent's open HDF5 file, and it leaves through os._exit, so no exit handler of the
     parent's libraries runs in it. Elsewhere (macOS, where forking a process that has loaded system
-    frameworks is unsafe): "spawn".
+    frameworks is unsafe): "spawn". Also "spawn" when the parent has numba loaded (a notebook that
+    called ppp.solvers.kernels.warm_up, the test-suite process): forked workers would inherit it and
+    run the compiled SCF loop, whose results differ from the numpy loop's, which the command line uses,
+    in the last digits (below 1e-12 eV) - and a resumed file would mix the two.
     """
-    return multiprocessing.get_context("fork" if sys.platform.startswith("linux") else "spawn")
+    fork = sys.platform.startswith("linux") and "numba" not in sys.modules
+    return multiprocessing.get_context("fork" if fork else "spawn")
 
 
 class _LocalBackend:
