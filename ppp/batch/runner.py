@@ -169,11 +169,12 @@ def _pool_context():
     """Start method of the local worker processes.
 
     Linux: "fork". A forked worker starts in milliseconds with the engine already imported by the
-    parent; a spawned one pays about 0.5 s of imports (numpy, scipy, numba, RDKit, h5py) first, which
+    parent; a spawned one pays about 0.5 s of imports (numpy, scipy, RDKit, h5py) first, which
     was most of the wall time of a few-hundred-molecule batch. The parent holds no threads of its own
-    when the pool starts (the pool launches all its workers before its manager thread), a worker never
+    when the command line starts the pool (the pool launches all its workers before its manager thread), a worker never
     touches the parent's open HDF5 file, and it leaves through os._exit, so no exit handler of the
-    parent's libraries runs in it. Elsewhere (macOS, where forking a process that has loaded system
+    parent's libraries runs in it. (A time-limit watchdog inherited from a parent that computed
+    molecules itself is replaced in the child: ppp.batch.worker registers that at fork.) Elsewhere (macOS, where forking a process that has loaded system
     frameworks is unsafe): "spawn". Also "spawn" when the parent has numba loaded (a notebook that
     called ppp.solvers.kernels.warm_up, the test-suite process): forked workers would inherit it and
     run the compiled SCF loop, whose results differ from the numpy loop's, which the command line uses,
