@@ -396,7 +396,8 @@ def model_for(prep: Prepared, pset: param_registry.ParameterSet, options: Option
     use_vb = pset.bond_order_beta_enabled if options.bond_order_beta is None else options.bond_order_beta
     settings = (pset.bond_order_beta or variable_beta.BondOrderBeta()) if use_vb else None
     model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, prep.coords, pset,
-                        options.gamma, atom_labels=labels, twist_factors=prep.twist, bond_order_beta=settings)
+                        options.gamma, atom_labels=labels, twist_factors=prep.twist, bond_order_beta=settings,
+                        alkyl_counts=sys_.alkyl_counts)
     if not options.in_solvent:
         return model
     field = solvent_model.reaction_field(solvent_model.load(options.solvent), prep.coords, sys_.types,

@@ -23,28 +23,28 @@ REF = Path(__file__).parent / "data" / "reference_absorption.csv"
 
 TARGET_EV = {"all": 0.20, "hydrocarbon": 0.12, "cyanine": 0.12, "any class": 0.35}
 
-#: Achieved today by the registry default (classic: textbook values, bond-order-dependent beta on as set
-#: in parameters/classic.toml, planar geometry); recomputed below. Measured 2026-12-02 by
-#: benchmarks/accuracy.py: all 0.251, hydrocarbon 0.172, cyanine 0.261, worst class 0.432 (coumarin) eV.
-#: Every entry above its target is a missed target (see docs/accuracy.md).
-CLASSIC_BOUND_EV = {"all": 0.26, "hydrocarbon": 0.18, "cyanine": 0.27, "any class": 0.44}
+#: Achieved today by the registry default (classic: textbook values, bond-order-dependent beta and the
+#: alkyl inductive shift on as set in parameters/classic.toml, planar geometry); recomputed below. Measured
+#: 2026-12-02 by benchmarks/accuracy.py: all 0.227, hydrocarbon 0.172, cyanine 0.256, worst class 0.339
+#: (coumarin) eV. Every entry above its target is a missed target (see docs/accuracy.md); "any class" is met.
+CLASSIC_BOUND_EV = {"all": 0.23, "hydrocarbon": 0.18, "cyanine": 0.26, "any class": 0.345}
 #: Achieved by classic with bond-order beta switched off (fixed beta per bond type, the textbook model;
-#: measured: all 0.293, hydrocarbon 0.314, cyanine 0.265, worst class 0.508 (polyene) eV).
-CLASSIC_FIXED_BOUND_EV = {"all": 0.30, "hydrocarbon": 0.32, "cyanine": 0.27, "any class": 0.52}
+#: measured: all 0.272, hydrocarbon 0.314, cyanine 0.260, worst class 0.508 (polyene) eV).
+CLASSIC_FIXED_BOUND_EV = {"all": 0.28, "hydrocarbon": 0.32, "cyanine": 0.27, "any class": 0.52}
 
 
 #: Achieved by the default set with each entry computed in the solvent of its measurement (generalized-Born
 #: reaction field, ppp.model.solvent; opt-in, not the default). Measured 2026-12-02 by
-#: benchmarks/accuracy.py --solvents both: all 0.228, hydrocarbon 0.185, cyanine 0.277, worst class 0.389
+#: benchmarks/accuracy.py --solvents both: all 0.233, hydrocarbon 0.185, cyanine 0.260, worst class 0.420
 #: (azo) eV. The targets are missed with the solvent model too (docs/accuracy.md).
-CLASSIC_SOLVENT_BOUND_EV = {"all": 0.23, "hydrocarbon": 0.19, "cyanine": 0.28, "any class": 0.39}
+CLASSIC_SOLVENT_BOUND_EV = {"all": 0.24, "hydrocarbon": 0.19, "cyanine": 0.27, "any class": 0.43}
 
 
 #: Achieved by the default set with singlets from the random-phase approximation (Options(response="rpa");
-#: opt-in). Measured 2026-12-02 by benchmarks/accuracy.py: all 0.214, hydrocarbon 0.166, cyanine 0.164,
-#: worst class 0.341 (coumarin) eV: the "no class worse than 0.35 eV" target is met this way, the others
-#: are missed by less than with CIS.
-CLASSIC_RPA_BOUND_EV = {"all": 0.22, "hydrocarbon": 0.17, "cyanine": 0.17, "any class": 0.35}
+#: opt-in). Measured 2026-12-02 by benchmarks/accuracy.py: all 0.190, hydrocarbon 0.166, cyanine 0.145,
+#: worst class 0.286 (carbonyl) eV: the "whole set" and "no class worse than 0.35 eV" targets are met this
+#: way, the hydrocarbon and cyanine ones are missed by less than with CIS.
+CLASSIC_RPA_BOUND_EV = {"all": 0.20, "hydrocarbon": 0.17, "cyanine": 0.15, "any class": 0.29}
 
 
 @pytest.fixture(scope="module")
@@ -129,3 +129,18 @@ def test_dye_set_training_error_matches_its_provenance_and_cv_meets_overall_targ
     assert cv["all"] <= TARGET_EV["all"]
     assert max(v for k, v in cv.items() if k not in ("all", "hydrocarbon")) <= TARGET_EV["any class"]
     assert dye.uncertainty["all"] == pytest.approx(cv["all"], abs=1e-4)
+
+
+def test_alkyl_shift_lowers_the_error(ref, classic_errors, tmp_path):
+    # the [alkyl_shift] table of classic (derived from ionisation energies, not fitted to spectra) is on
+    # by default because it lowers the measured error; without it (measured 2026-12-02): all 0.251,
+    # coumarin 0.432, push-pull 0.335, xanthene 0.228, azo 0.239 eV
+    text = Path(params.load("classic").path).read_text()
+    plain = tmp_path / "classic_without_alkyl_shift.toml"
+    plain.write_text(text[:text.index("[alkyl_shift]")] + text[text.index("[bond_order_beta]"):])
+    off = _errors(ref, str(plain))
+    assert classic_errors["all"].mae_ev < off["all"].mae_ev - 0.015
+    for cls in ("coumarin", "push-pull", "xanthene", "azo"):  # the classes with N-alkyl donors
+        assert classic_errors[cls].mae_ev < off[cls].mae_ev, cls
+    # hydrocarbons have no amino nitrogen: unchanged
+    assert classic_errors["hydrocarbon"].mae_ev == pytest.approx(off["hydrocarbon"].mae_ev, abs=1e-9)

@@ -60,8 +60,8 @@ def _write_variant(tmp_path, old, new, name="variant.toml"):
     ('name = "classic"', 'nom = "classic"', "missing 'name'"),
     ('"C-C" =', '"C-X" =', "two defined types"),
     ('bond_length_angstrom = 1.40', 'bond_length_angstrom = 14.0', "outside"),
-    ('cyanine = 0.164', 'cyanine = -0.164', r"\[uncertainty.rpa.mae_ev\] cyanine must not be negative"),
-    ('cyanine = 0.261', 'cyanine = "large"', "finite number"),
+    ('cyanine = 0.145', 'cyanine = -0.164', r"\[uncertainty.rpa.mae_ev\] cyanine must not be negative"),
+    ('cyanine = 0.256', 'cyanine = "large"', "finite number"),
 ])
 def test_bad_parameter_files_are_refused(tmp_path, old, new, match):
     p = _write_variant(tmp_path, old, new)

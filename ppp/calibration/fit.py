@@ -2,7 +2,8 @@
 cross-validation so that the reported error is an out-of-sample one.
 
 The fitted quantities are named ``beta:A-B`` (resonance integral of an A-B bond), ``ip:T`` (valence-state
-ionisation potential I of centre type T) and ``u:T`` (one-centre repulsion of T). The objective is
+ionisation potential I of centre type T), ``u:T`` (one-centre repulsion of T) and ``alkyl:T`` (inductive
+shift of I per alkyl substituent on a centre of type T, the set's ``[alkyl_shift]`` table; 0 when absent). The objective is
 
     sum_m r_m^2 + sum_k ((x_k - x0_k) / s_k)^2
 
@@ -29,22 +30,22 @@ from ..errors import InputError, ParameterError
 from ..model.params import CentreType, ParameterSet, _pair_key
 from .evaluate import PreparedEntry, predict
 
-KINDS = ("beta", "ip", "u")
+KINDS = ("beta", "ip", "u", "alkyl")
 #: Residual (eV) given to a molecule whose band cannot be matched under trial parameters.
 FAILED_RESIDUAL_EV = 1.0
 #: Width (eV) of the prior on each kind of parameter.
-PRIOR_WIDTH_EV = {"beta": 0.5, "ip": 2.0, "u": 2.0}
+PRIOR_WIDTH_EV = {"beta": 0.5, "ip": 2.0, "u": 2.0, "alkyl": 0.5}
 #: Forward-difference step (eV).
 FD_STEP_EV = 1e-3
 #: Box bounds as offsets from the starting value (eV); beta additionally stays negative.
-BOUND_OFFSET_EV = {"beta": 1.5, "ip": 6.0, "u": 6.0}
+BOUND_OFFSET_EV = {"beta": 1.5, "ip": 6.0, "u": 6.0, "alkyl": 1.5}
 
 
 @dataclass(frozen=True)
 class FitParameter:
     """One adjustable value of a parameter set."""
 
-    kind: str  # "beta", "ip" or "u"
+    kind: str  # "beta", "ip", "u" or "alkyl"
     key: str  # "A-B" for beta (sorted), type name otherwise
 
     @property
@@ -57,15 +58,18 @@ class FitParameter:
     def value(self, pset: ParameterSet) -> float:
         if self.kind == "beta":
             return float(pset.beta[_pair_key(*self.key.split("-"))])
+        if self.kind == "alkyl":
+            return float(pset.alkyl_shift.get(self.key, 0.0))
         t = pset.types[self.key]
         return float(t.ip_ev if self.kind == "ip" else t.u_ev)
 
 
 def parse_parameter(spec: str, pset: ParameterSet) -> FitParameter:
-    """``beta:C-N.amino``, ``ip:N.amino`` or ``u:O.oxo`` -> FitParameter (checked against the set)."""
+    """``beta:C-N.amino``, ``ip:N.amino``, ``u:O.oxo`` or ``alkyl:N.amino`` -> FitParameter (checked against
+    the set)."""
     kind, sep, key = spec.strip().partition(":")
     if not sep or kind not in KINDS:
-        raise InputError(f"fit parameter '{spec}': write beta:A-B, ip:TYPE or u:TYPE")
+        raise InputError(f"fit parameter '{spec}': write beta:A-B, ip:TYPE, u:TYPE or alkyl:TYPE")
     if kind == "beta":
         parts = key.split("-")
         if len(parts) != 2 or _pair_key(*parts) not in pset.beta:
@@ -77,17 +81,21 @@ def parse_parameter(spec: str, pset: ParameterSet) -> FitParameter:
 
 
 def _entry_keys(pe: PreparedEntry) -> set[str]:
-    """Type names and sorted bond-pair keys occurring in a prepared molecule."""
+    """Type names, sorted bond-pair keys and "alkyl:T" (a centre of type T bearing an alkyl group)
+    occurring in a prepared molecule."""
     keys: set[str] = set()
     for prep in pe.chromophores:
         types = prep.system.types
         keys.update(types)
         keys.update("-".join(_pair_key(types[i], types[j])) for i, j in prep.system.bonds)
+        if prep.system.alkyl_counts is not None:
+            keys.update(f"alkyl:{t}" for t, n in zip(types, prep.system.alkyl_counts.tolist()) if n)
     return keys
 
 
 def default_parameters(prepared, pset: ParameterSet, min_count: int = 3) -> list[FitParameter]:
-    """Heteroatom ip values and heteroatom bond betas that occur in at least ``min_count`` molecules."""
+    """Heteroatom ip values, heteroatom bond betas and the alkyl shifts the set defines
+    (``[alkyl_shift]``) that occur in at least ``min_count`` molecules."""
     counts: dict[str, int] = {}
     for pe in prepared:
         for k in _entry_keys(pe):
@@ -96,7 +104,10 @@ def default_parameters(prepared, pset: ParameterSet, min_count: int = 3) -> list
     for k, n in sorted(counts.items()):
         if n < min_count:
             continue
-        if "-" in k and _pair_key(*k.split("-")) in pset.beta and k != "C-C":
+        if k.startswith("alkyl:"):
+            if k[6:] in pset.alkyl_shift:
+                out.append(FitParameter("alkyl", k[6:]))
+        elif "-" in k and _pair_key(*k.split("-")) in pset.beta and k != "C-C":
             out.append(FitParameter("beta", k))
         elif "-" not in k and k in pset.types and k != "C":
             out.append(FitParameter("ip", k))
@@ -107,15 +118,19 @@ def apply(pset: ParameterSet, params, values) -> ParameterSet:
     """A copy of ``pset`` with the given parameters set to ``values`` (not written to disk)."""
     types = dict(pset.types)
     beta = dict(pset.beta)
+    alkyl = dict(pset.alkyl_shift)
     for p, v in zip(params, values):
         v = float(v)
         if p.kind == "beta":
             beta[_pair_key(*p.key.split("-"))] = v
+        elif p.kind == "alkyl":
+            alkyl[p.key] = v
         else:
             t = types[p.key]
             types[p.key] = CentreType(t.name, t.z, v if p.kind == "ip" else t.ip_ev,
                                       v if p.kind == "u" else t.u_ev, t.source)
-    return replace(pset, types=MappingProxyType(types), beta=MappingProxyType(beta))
+    return replace(pset, types=MappingProxyType(types), beta=MappingProxyType(beta),
+                   alkyl_shift=MappingProxyType(alkyl))
 
 
 def _bounds(params, x0):
@@ -292,6 +307,8 @@ def write_parameter_file(pset: ParameterSet, result: FitResult, name: str, refer
         if p.kind == "beta":
             key = _find_beta_key(data["beta"], p.key)
             data["beta"][key] = {"value_ev": round(float(v), 4), "source": note}
+        elif p.kind == "alkyl":
+            data.setdefault("alkyl_shift", {})[p.key] = {"value_ev": round(float(v), 4), "source": note}
         else:
             entry = data["types"][p.key]
             entry["ip_ev" if p.kind == "ip" else "u_ev"] = round(float(v), 4)

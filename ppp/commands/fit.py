@@ -19,8 +19,8 @@ def add_arguments(p) -> None:
     p.add_argument("reference", metavar="REFERENCE.csv",
                    help="measured bands: name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source")
     p.add_argument("--parameters", metavar="SET", help="starting parameter set (default: the registry default)")
-    p.add_argument("--fit", metavar="LIST", help="comma-separated values to fit: beta:A-B, ip:TYPE, u:TYPE "
-                   "(default: heteroatom ip and heteroatom-bond beta values present in >= 3 molecules)")
+    p.add_argument("--fit", metavar="LIST", help="comma-separated values to fit: beta:A-B, ip:TYPE, u:TYPE, alkyl:TYPE "
+                   "(default: heteroatom ip, heteroatom-bond beta and alkyl shifts present in >= 3 molecules)")
     p.add_argument("--classes", metavar="LIST", help="use only rows of these classes (comma-separated)")
     p.add_argument("--folds", type=int, default=5, metavar="K", help="cross-validation folds (5)")
     p.add_argument("--seed", type=int, default=20240601, help="seed of the fold assignment")

@@ -145,8 +145,13 @@ def beta_matrix(types, bonds: np.ndarray, params: ParameterSet, atom_labels=None
 def build_model(types, core_charges, n_electrons: int, bonds: np.ndarray, coords: np.ndarray,
                 params: ParameterSet, gamma_formula: str | None = None, atom_labels=None,
                 twist_factors: np.ndarray | None = None,
-                bond_order_beta: BondOrderBeta | None = None) -> Model:
+                bond_order_beta: BondOrderBeta | None = None, alkyl_counts: np.ndarray | None = None) -> Model:
     """Assemble the model matrices for one chromophore from its perceived centres and coordinates.
+
+    alkyl_counts : optional (N,) alkyl substituents per centre (:class:`ppp.structure.perceive.PiSystem`);
+        with the set's ``[alkyl_shift]`` table, I_i -> I_i - n_i * shift(type_i): the inductive model of
+        an alkyl group as a change of the attached centre's Coulomb integral (Wheland & Pauling 1935;
+        Streitwieser 1961), here of its valence-state ionisation potential
 
     twist_factors : optional (M,) factors multiplying each bond's beta (|cos theta| of twisted bonds)
     bond_order_beta : optional settings; the solver then iterates beta with the bond orders, starting
@@ -161,6 +166,9 @@ def build_model(types, core_charges, n_electrons: int, bonds: np.ndarray, coords
             f"(it covers {', '.join(params.types)})")
     formula = gamma_formula or params.gamma_formula
     ip = np.array([params.types[t].ip_ev for t in types])
+    if alkyl_counts is not None and params.alkyl_shift:
+        shift = np.array([params.alkyl_shift.get(t, 0.0) for t in types])
+        ip = ip - shift * np.asarray(alkyl_counts, dtype=float)
     u = np.array([params.types[t].u_ev for t in types])
     z = np.asarray(core_charges, dtype=int)
     gamma = gamma_matrix(coords, u, formula)

@@ -59,6 +59,10 @@ class ParameterSet:
     uncertainty_source: str = ""
     #: the same figures measured with RPA singlets ([uncertainty.rpa] table; empty when not measured)
     uncertainty_rpa: Mapping[str, float] = field(default_factory=lambda: MappingProxyType({}))
+    #: inductive shift per alkyl substituent by centre type ([alkyl_shift] table), eV: the valence-state
+    #: ionisation potential I of a centre of that type is lowered by this much for each saturated carbon
+    #: bonded to it (:func:`ppp.model.hamiltonian.build_model`); types not listed get no shift
+    alkyl_shift: Mapping[str, float] = field(default_factory=lambda: MappingProxyType({}))
 
     @property
     def short_hash(self) -> str:
@@ -205,6 +209,20 @@ def _load_path(path: str) -> ParameterSet:
         for pair in bob.pairs:
             if not all(t in types for t in pair):
                 raise ParameterError(f"{where}: [bond_order_beta] pair '{'-'.join(pair)}' names an undefined type")
+    alkyl: dict[str, float] = {}
+    if "alkyl_shift" in data:
+        table = need(data, "alkyl_shift", dict, "the top level")
+        for tname, entry in table.items():
+            ctx = f"[alkyl_shift] '{tname}'"
+            if tname not in types:
+                raise ParameterError(f"{where}: {ctx} names an undefined centre type")
+            if not isinstance(entry, dict):
+                raise ParameterError(f"{where}: {ctx} must be {{ value_ev = ..., source = ... }}")
+            value = need(entry, "value_ev", float, ctx)
+            need(entry, "source", str, ctx)
+            if abs(value) > 5.0:
+                raise ParameterError(f"{where}: {ctx} value_ev {value} outside -5 to 5 eV")
+            alkyl[tname] = value
     unc: dict[str, float] = {}
     unc_rpa: dict[str, float] = {}
     unc_source = ""
@@ -236,6 +254,6 @@ def _load_path(path: str) -> ParameterSet:
         is_default=bool(data.get("default", False)),
         bond_order_beta=bob, bond_order_beta_enabled=bob_on,
         uncertainty=MappingProxyType(unc), uncertainty_source=unc_source,
-        uncertainty_rpa=MappingProxyType(unc_rpa),
+        uncertainty_rpa=MappingProxyType(unc_rpa), alkyl_shift=MappingProxyType(alkyl),
     )
     return pset

@@ -19,6 +19,9 @@ Rules (common practice in PPP work, written out so they can be checked):
 * Each centre's nominal pi-electron count is ``Z - formal charge`` (pyridine N 1, pyrrole N 2,
   iminium N+ 1, carbonyl O 1, phenolate O- 2, B 0). The pi-electron count of a chromophore is the
   sum, so its net pi charge equals the sum of the formal charges of its atoms.
+* Saturated carbon substituents (alkyl groups: sp3 C with four sigma bonds, no halogen on it) are not
+  centres; their number on each centre is recorded (``alkyl_counts``) for the inductive term of
+  parameter sets with an ``[alkyl_shift]`` table (:func:`ppp.model.hamiltonian.build_model`).
 * Connected pi-centres form one chromophore. A molecule with several unconnected pi-systems gives
   several chromophores, each solved on its own (no coupling between them).
 """
@@ -55,6 +58,9 @@ class PiSystem:
     charge : int              net pi charge, sum(Z) - n_electrons
     double_bonds : (K, 2) int or None   local index pairs of the double bonds of the Kekule structure
                               perception used (RDKit's), for the SCF start density; None if unknown
+    alkyl_counts : (N,) int or None   saturated carbon substituents of each centre (sp3 carbons, four
+                              sigma bonds, not bonded to a halogen): the alkyl groups whose inductive
+                              effect a parameter set's ``[alkyl_shift]`` table adds; None if not counted
     """
 
     atom_indices: np.ndarray
@@ -66,6 +72,7 @@ class PiSystem:
     n_electrons: int
     charge: int
     double_bonds: np.ndarray | None = None
+    alkyl_counts: np.ndarray | None = None
 
     @property
     def n_centres(self) -> int:
@@ -184,6 +191,9 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
         if any(unsaturated[j] for j in neighbours[i]):
             in_pi[i] = True
 
+    def alkyl_carbon(j: int) -> bool:  # saturated carbon, no halogen on it (CF3 is not an alkyl group)
+        return sym[j] == "C" and nsig[j] == 4 and not in_pi[j] and not any(sym[x] in _HALOGENS for x in neighbours[j])
+
     if not any(in_pi):
         raise NoPiSystemError("no pi-system (no conjugated multiple bonds)")
 
@@ -226,6 +236,7 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
                 if bt == double:
                     doubles.append((i, j))
         bonds.sort()
+        alkyl = [sum(1 for j in neighbours[a] if alkyl_carbon(j)) for a in members]
         n_el = int(n_pi.sum())
         label = f"chromophore {c + 1} ({len(idx)} centres)"
         if n_el % 2:
@@ -238,5 +249,6 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
             core_charges=z, n_pi=n_pi.astype(int), bonds=np.array(bonds, dtype=int).reshape(-1, 2),
             n_electrons=n_el, charge=int(z.sum()) - n_el,
             double_bonds=np.array(doubles, dtype=int).reshape(-1, 2),
+            alkyl_counts=np.array(alkyl, dtype=int),
         ))
     return tuple(systems)
