@@ -7,6 +7,17 @@ from ppp.driver import Options, build_models
 from ppp.structure.readers import mol_from_smiles
 
 
+def classic_variant(tmp_path, old: str, new: str, name: str = "variant.toml"):
+    """Path of a copy of the shipped ``classic`` parameter file with the first ``old`` replaced by ``new``."""
+    from ppp.model import params
+
+    text = open(params.load("classic").path, encoding="utf-8").read()
+    assert old in text
+    p = tmp_path / name
+    p.write_text(text.replace(old, new, 1), encoding="utf-8")
+    return p
+
+
 def model_of(smiles: str, **opts):
     """The single chromophore model of a SMILES (asserts there is exactly one)."""
     systems = build_models(mol_from_smiles(smiles), Options(**opts))

@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import classic_variant
 
 from ppp.calibration import evaluate as ev
 from ppp.calibration import fit as F
@@ -52,14 +53,6 @@ def test_julolidine_nitrogen_carries_two_ring_alkyls():
     (n_idx,) = [a.GetIdx() for a in mol_from_smiles(smiles).GetAtoms() if a.GetSymbol() == "N"]
     assert counts[n_idx] == 2
     assert counts[3] == 0  # the ring carbon bearing CF3 (atom 4 is the CF3 carbon)
-
-
-def _variant(tmp_path, old, new, name="variant.toml"):
-    text = CLASSIC.read_text()
-    assert old in text
-    p = tmp_path / name
-    p.write_text(text.replace(old, new, 1))
-    return p
 
 
 def _without_table(tmp_path):
@@ -137,7 +130,7 @@ def test_n_alkylation_red_shifts_the_charge_transfer_band(tmp_path):
     ('"N.amino" = { value_ev = 0.79, source', '"N.amino" = { value_ev = 0.79, origin', "missing 'source'"),
 ])
 def test_bad_alkyl_shift_table_is_a_one_line_error(tmp_path, old, new, match):
-    path = _variant(tmp_path, old, new)
+    path = classic_variant(tmp_path, old, new)
     with pytest.raises(ParameterError, match=match) as info:
         params.load(str(path))
     assert "\n" not in str(info.value)

@@ -6,6 +6,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import classic_variant
 
 import ppp
 from ppp.errors import ParameterError
@@ -43,12 +44,7 @@ def test_result_carries_name_and_hash():
     assert res.to_dict()["model"]["parameters"]["sha256"] == res.parameters_sha256
 
 
-def _write_variant(tmp_path, old, new, name="variant.toml"):
-    text = CLASSIC.read_text()
-    assert old in text
-    p = tmp_path / name
-    p.write_text(text.replace(old, new, 1))
-    return p
+_write_variant = classic_variant
 
 
 @pytest.mark.parametrize("old, new, match", [
