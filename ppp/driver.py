@@ -199,11 +199,24 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
     return replace(res, energies=e[order], amplitudes=res.amplitudes[order])
 
 
-def singlet_roots(scf, model, options, timer=None) -> cis_solver.CISResult | rpa.RPAResult:
+def shared_exchange(scf, model: Model, options: Options) -> np.ndarray | None:
+    """The exchange integrals (ij|ab) of the SCF orbitals (:func:`ppp.solvers.cis.exchange_integrals`),
+    made once for the dense CIS singlet and triplet matrices, which both contain them; None when they
+    are not both dense CIS matrices (the iterative solver, RPA singlets, or no roots of one kind)."""
+    o = model.n_occ
+    if (options.response != "cis" or not options.n_singlets or not options.n_triplets
+            or cis_solver.choose_solver(o, model.n_centres - o, options.cis_solver) != "dense"):
+        return None
+    return cis_solver.exchange_integrals(scf.mo_coeff, model.gamma, o)
+
+
+def singlet_roots(scf, model, options, timer=None, exchange: np.ndarray | None = None
+                  ) -> cis_solver.CISResult | rpa.RPAResult:
     """Singlets by the chosen response method on the SCF orbitals, without the solvent's state-specific
     term (the stability tests look at these roots; :func:`solvent_corrected` is applied afterwards).
     An RPA that finds the reference unstable falls back to CIS, which then decides (through a
-    non-positive root) whether the reference must be followed."""
+    non-positive root) whether the reference must be followed.
+    exchange : optional :func:`shared_exchange` of ``scf`` for the dense CIS matrix."""
     if options.response == "rpa":
         with maybe_stage(timer, "RPA singlets"):
             try:
@@ -213,7 +226,7 @@ def singlet_roots(scf, model, options, timer=None) -> cis_solver.CISResult | rpa
                 pass
     with maybe_stage(timer, "CIS singlets"):
         return cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
-                                 solver=options.cis_solver, dipole_coords=model.coords)
+                                 solver=options.cis_solver, dipole_coords=model.coords, exchange=exchange)
 
 
 def _unstable(sing: cis_solver.CISResult) -> bool:
@@ -261,10 +274,15 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
     model0 = model
     with maybe_stage(timer, "SCF"):
         model, scf = ground_scf(model0, options, index, dens_guess=dens_guess)
-    sing = singlet_roots(scf, model, options, timer)
+    with maybe_stage(timer, "CIS singlets"):
+        exchange = shared_exchange(scf, model, options)
+    sing = singlet_roots(scf, model, options, timer, exchange)
     if _unstable(sing):
         # the SCF may sit on a saddle point: look for a lower, stable closed-shell solution
+        scf_before = scf
         model, scf, sing = seek_stable(model0, model, scf, sing, options, index, timer)
+        if scf is not scf_before:
+            exchange = None  # other orbitals
     # A non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus 1967
     # instability). Singlet instability that cannot be followed to a minimum: the closed-shell ground
     # state itself is wrong (biradical character), so the molecule is refused. Triplet instability
@@ -284,7 +302,7 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
                 f"state ({sing.energies[0]:.3f} eV): the first-order solvent treatment breaks down here")
     with maybe_stage(timer, "CIS triplets"):
         trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3,
-                                 solver=options.cis_solver)
+                                 solver=options.cis_solver, exchange=exchange)
     notes = []
     if options.response == "rpa" and not isinstance(sing, rpa.RPAResult):
         notes.append("RPA singlets not possible (A - B or A + B not positive definite: instability of the "

@@ -121,6 +121,7 @@ class _DIIS:
         self._b = np.zeros((space, space))
         self._a: list = [None] * (space + 1)
         self._rhs: list = [None] * (space + 1)
+        self._ab: list = [None] * (space + 1)  # the B blocks of the bordered matrices (views)
         self._f = self._e = None
         self._pending = 0
         self.last_norm = np.inf  # B_ss of the pair stored last
@@ -134,6 +135,11 @@ class _DIIS:
         self._fv = [row.reshape(n, n) for row in self._f]  # N x N views of the slots
         self._ev = [row.reshape(n, n) for row in self._e]
         self._dv = [row[::n + 1] for row in self._f]  # the diagonals of the Fock slots
+        # views per number m of stored vectors, made once: the leading m rows of the buffers and the
+        # leading m x m block of B (slicing costs about as much as the small products themselves)
+        self._fm = [self._f[:m] for m in range(self.space + 1)]
+        self._em = [self._e[:m] for m in range(self.space + 1)]
+        self._bm = [self._b[:m, :m] for m in range(self.space + 1)]
 
     @property
     def focks(self) -> list[np.ndarray]:
@@ -157,7 +163,9 @@ class _DIIS:
             self.slots.pop(0)  # overwrite the oldest
         self.slots.append(slot)
         n = len(self.slots)  # slots 0..n-1 are in use (filled in order, then overwritten in turn)
-        row = self._e[:n] @ self._e[slot]
+        # ndarray.dot: the BLAS call of the @ operator (same numbers) without the ufunc dispatch, which
+        # costs as much as the product at this size
+        row = self._em[n].dot(self._e[slot])
         self._b[slot, :n] = row
         self._b[:n, slot] = row
         self.last_norm = self._norm[slot] = float(row[slot])
@@ -177,21 +185,22 @@ class _DIIS:
         if a is None:
             a = self._a[n] = _bordered(n)
             rhs = self._rhs[n] = np.concatenate([np.zeros(n), [-1.0]])
+            self._ab[n] = a[:n, :n]
         # B is a Gram matrix: its largest entry lies on the diagonal (Cauchy-Schwarz); scaled to 1
         scale = max(self._norm[:n])
         if scale > 0:
-            np.divide(self._b[:n, :n], scale, out=a[:n, :n])
+            np.divide(self._bm[n], scale, out=self._ab[n])
         else:
-            a[:n, :n] = self._b[:n, :n]
+            self._ab[n][...] = self._bm[n]
         _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a)
-        if info != 0 or not coef @ coef <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
+        if info != 0 or not coef.dot(coef) <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
             try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
                 coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
             except np.linalg.LinAlgError:
                 coef = None
             if coef is None or not np.isfinite(coef).all():
                 return self._fv[self.slots[-1]]
-        return (coef[:n] @ self._f[:n]).reshape(self._shape)
+        return coef[:n].dot(self._fm[n]).reshape(self._shape)
 
 
 def _bordered(n: int) -> np.ndarray:
@@ -237,6 +246,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     gamma2 = gamma + gamma
     ring = _DIIS(diis_space if use_diis else 1, n)
     fd = np.empty((n, n))
+    fd_t = fd.T
     eye = np.eye(n) if level_shift else None
     core_change = 0.0
     # With DIIS, |FD - DF|^2 comes with the new row of B; max |x| >= |x|_F / N, so while |FD - DF|_F
@@ -255,9 +265,9 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
         fock, err, fdiag = ring.target()
         np.multiply(d, gamma, out=fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
         np.subtract(core, fock, out=fock)
-        fdiag += gamma2 @ d.diagonal()  # the diagonal, as a strided view
-        np.matmul(fock, d, out=fd)
-        np.subtract(fd, fd.T, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
+        fdiag += gamma2.dot(d.diagonal())  # the diagonal, as a strided view
+        fock.dot(d, out=fd)
+        np.subtract(fd, fd_t, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
         if use_diis:
             ring.commit()
         if not lazy or ring.last_norm < gate:
@@ -279,8 +289,11 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
             f_use = ring.extrapolate()
         if level_shift:
             f_use = f_use + level_shift * (eye - d)  # shift of the virtual space, I - P/2 (Saunders & Hillier 1973)
-        c = eigh(f_use)[1][:, :n_occ]
-        new = c @ c.T
+        _, c, info = _lapack.dsyevd(f_use)  # eigh() inlined: a function call less per iteration
+        if info != 0:
+            c = np.linalg.eigh(f_use)[1]
+        c = c[:, :n_occ]
+        new = c.dot(c.T)
         d = (1.0 - damping) * new + damping * d if damping else new
     return False, max_iter, d + d
 
