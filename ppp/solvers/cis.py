@@ -83,7 +83,7 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
         np.negative(a, out=a)
     del j_int
     diag = (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
-    a.flat[::o * v + 1] += diag  # the diagonal as a strided view (no index arrays)
+    a.ravel()[::o * v + 1] += diag  # the diagonal as a strided view (no index arrays, no flat iterator)
     return a
 
 

@@ -58,7 +58,7 @@ class SCFResult:
 def fock_matrix(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray) -> np.ndarray:
     """PPP Fock matrix (N, N), eV, from core h, gamma and density P (equation in the module doc)."""
     f = core - 0.5 * dens * gamma
-    f.ravel()[::f.shape[0] + 1] += gamma @ dens.diagonal()  # the diagonal, as a strided view
+    f.ravel()[::f.shape[0] + 1] += gamma.dot(dens.diagonal())  # the diagonal, as a strided view
     return f
 
 
@@ -78,7 +78,7 @@ JIT_MIN_CENTRES = 1
 def density(mo_coeff: np.ndarray, n_occ: int) -> np.ndarray:
     """Closed-shell density P = 2 C_occ C_occ^T."""
     c = mo_coeff[:, :n_occ]
-    p = c @ c.T
+    p = c.dot(c.T)  # ndarray.dot: the BLAS call of @, without the ufunc dispatch
     p *= 2.0
     return p
 
@@ -95,7 +95,7 @@ def eigh(mat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def commutator(fock: np.ndarray, dens: np.ndarray) -> np.ndarray:
     """SCF error FP - PF (N, N), eV; for symmetric F and P it is FP - (FP)^T: one matrix product."""
-    fp = fock @ dens
+    fp = fock.dot(dens)
     return fp - fp.T
 
 
@@ -119,9 +119,14 @@ class _DIIS:
         self.slots: list[int] = []  # ring-buffer slots in insertion order
         self._norm = [0.0] * space  # B_ss of each slot
         self._b = np.zeros((space, space))
-        self._a: list = [None] * (space + 1)
-        self._rhs: list = [None] * (space + 1)
-        self._ab: list = [None] * (space + 1)  # the B blocks of the bordered matrices (views)
+        # the bordered DIIS matrices [[B, -1], [-1, 0]] of every size m <= space are the leading
+        # (m + 1) x (m + 1) blocks of one array, and the right-hand sides (0, ..., 0, -1) the leading
+        # m + 1 entries of one vector: the subspace only grows (to ``space``, then stays), so the
+        # border of the current size is never overwritten by a smaller B (see :meth:`extrapolate`)
+        self._a = np.empty((space + 1, space + 1))
+        self._a.fill(-1.0)  # (np.full costs five times as much)
+        self._rhs = np.zeros(space + 1)
+        self._size = 0  # subspace size of the last extrapolation
         self._f = self._e = None
         self._pending = 0
         self.last_norm = np.inf  # B_ss of the pair stored last
@@ -129,17 +134,19 @@ class _DIIS:
             self._allocate(n)
 
     def _allocate(self, n: int) -> None:
-        self._f = np.empty((self.space, n * n))
-        self._e = np.empty((self.space, n * n))
+        space = self.space
+        self._f = np.empty((space, n * n))
+        self._e = np.empty((space, n * n))
         self._shape = (n, n)
-        self._fv = [row.reshape(n, n) for row in self._f]  # N x N views of the slots
-        self._ev = [row.reshape(n, n) for row in self._e]
-        self._dv = [row[::n + 1] for row in self._f]  # the diagonals of the Fock slots
-        # views per number m of stored vectors, made once: the leading m rows of the buffers and the
-        # leading m x m block of B (slicing costs about as much as the small products themselves)
-        self._fm = [self._f[:m] for m in range(self.space + 1)]
-        self._em = [self._e[:m] for m in range(self.space + 1)]
-        self._bm = [self._b[:m, :m] for m in range(self.space + 1)]
+        self._fv = list(self._f.reshape(space, n, n))  # N x N views of the slots
+        self._ev = list(self._e.reshape(space, n, n))
+        self._dv = list(self._f[:, ::n + 1])  # the diagonals of the Fock slots
+        # views per number m of stored vectors, made once: the leading m rows of the buffers, the
+        # leading m x m block of B, and the bordered system of size m (slicing costs about as much
+        # as the small products themselves)
+        self._fm = [self._f[:m] for m in range(space + 1)]
+        self._em = [self._e[:m] for m in range(space + 1)]
+        self._bm = [self._b[:m, :m] for m in range(space + 1)]
 
     @property
     def focks(self) -> list[np.ndarray]:
@@ -181,18 +188,16 @@ class _DIIS:
 
     def extrapolate(self) -> np.ndarray:
         n = len(self.slots)  # the extrapolation does not depend on the order of the vectors
-        a, rhs = self._a[n], self._rhs[n]
-        if a is None:
-            a = self._a[n] = _bordered(n)
-            rhs = self._rhs[n] = np.concatenate([np.zeros(n), [-1.0]])
-            self._ab[n] = a[:n, :n]
+        if n != self._size:
+            self._resize(n)
+        a, rhs = self._a[:n + 1, :n + 1], self._rhs[:n + 1]
         # B is a Gram matrix: its largest entry lies on the diagonal (Cauchy-Schwarz); scaled to 1
         scale = max(self._norm[:n])
         if scale > 0:
-            np.divide(self._bm[n], scale, out=self._ab[n])
+            np.divide(self._bm[n], scale, out=self._a[:n, :n])
         else:
-            self._ab[n][...] = self._bm[n]
-        _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a)
+            self._a[:n, :n] = self._bm[n]
+        _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a and rhs)
         if info != 0 or not coef.dot(coef) <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
             try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
                 coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
@@ -202,12 +207,15 @@ class _DIIS:
                 return self._fv[self.slots[-1]]
         return coef[:n].dot(self._fm[n]).reshape(self._shape)
 
-
-def _bordered(n: int) -> np.ndarray:
-    """(n + 1, n + 1) template [[B, -1], [-1, 0]] of the DIIS equations; B (n x n) is written in later."""
-    a = np.full((n + 1, n + 1), -1.0)
-    a[-1, -1] = 0.0
-    return a
+    def _resize(self, n: int) -> None:
+        """Set the border of the size-n bordered system: row and column n -1, corner 0, rhs e_n (-1)."""
+        old = self._size
+        self._rhs[old] = 0.0
+        self._rhs[n] = -1.0
+        self._a[n, :n] = -1.0  # (untouched -1 when the size grows; rewritten should it ever shrink)
+        self._a[:n, n] = -1.0
+        self._a[n, n] = 0.0
+        self._size = n
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
