@@ -256,7 +256,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     fd = np.empty((n, n))
     fd_t = fd.T
     eye = np.eye(n) if level_shift else None
-    core_change = 0.0
+    old_core = None
     # With DIIS, |FD - DF|^2 comes with the new row of B; max |x| >= |x|_F / N, so while |FD - DF|_F
     # exceeds N conv_tol_grad / 2 (with a margin for its rounding) the error test must fail and the
     # energy is not needed yet. The energy of the iteration before is then computed when first needed,
@@ -267,9 +267,8 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     prev = None
     for it in range(1, max_iter + 1):
         if core_update is not None:
-            new_core = core_update(d + d)
-            core_change = float(np.abs(new_core - core).max()) if it > 1 else np.inf
-            core = new_core
+            old_core = core
+            core = core_update(d + d)
         fock, err, fdiag = ring.target()
         np.multiply(d, gamma, out=fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
         np.subtract(core, fock, out=fock)
@@ -286,7 +285,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
             # the energy test allows for rounding in E (|E| ~ 10^4 eV at 1,000 centres); FP - PF is
             # antisymmetric: its largest entry is its largest |entry|
             if (abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and 2.0 * float(err.max()) < conv_tol_grad
-                    and core_change < core_tol):
+                    and _core_change(core, old_core, core_update is not None, it) < core_tol):
                 return True, it, d + d
         else:
             e = None
@@ -304,6 +303,14 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
         new = c.dot(c.T)
         d = (1.0 - damping) * new + damping * d if damping else new
     return False, max_iter, d + d
+
+
+def _core_change(core: np.ndarray, old_core: np.ndarray | None, updated: bool, it: int) -> float:
+    """max |change of the core| in iteration ``it`` of :func:`iterate` (0 without a core update, infinite
+    in the first iteration); evaluated only when the other convergence tests have passed."""
+    if not updated:
+        return 0.0
+    return float(np.abs(core - old_core).max()) if it > 1 else np.inf
 
 
 def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 100,
