@@ -161,7 +161,7 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     w, x = w[:k], x[:k]
     # fix the arbitrary sign of each root: largest coefficient positive (reproducible output)
     flat = x.reshape(k, -1)
-    sign = np.sign(flat[np.arange(k), np.argmax(np.abs(flat), axis=1)])
+    sign = np.sign(flat[np.arange(k), np.abs(flat).argmax(axis=1)])
     x = x * sign[:, None, None]
     return CISResult(multiplicity, w, x)
 
@@ -203,17 +203,21 @@ def align_degenerate(energies: np.ndarray, amplitudes: np.ndarray, mo_coeff: np.
     (e.g. the two components of an E-type level of a symmetric molecule) keep an arbitrary mixing,
     which leaves their strengths unchanged. A level cut by the last root computed is left alone.
 
-    amplitudes : (k, n_occ, n_vir); coords : (N, 3). Returns the rotated amplitudes.
+    amplitudes : (k, n_occ, n_vir); coords : (N, 3). Returns the rotated amplitudes (a new array), or
+    ``amplitudes`` itself when no level is degenerate.
     """
     k = len(energies)
     if k < 2:
         return amplitudes
+    e = np.asarray(energies).tolist()  # Python floats: the scan below costs a tenth of numpy scalars'
+    if all(b - a >= tol for a, b in zip(e, e[1:])):
+        return amplitudes  # no degenerate level (the common case): nothing to rotate
     out = np.array(amplitudes, copy=True)
     dip = None
     start = 0
     while start < k:
         stop = start + 1
-        while stop < k and energies[stop] - energies[stop - 1] < tol:
+        while stop < k and e[stop] - e[stop - 1] < tol:
             stop += 1
         if stop - start > 1 and stop < k:
             x = out[start:stop].reshape(stop - start, -1)
