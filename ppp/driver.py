@@ -130,8 +130,8 @@ def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model
         f = [0.0] * k
         pol = [(None, "-")] * k
         dips = [(0.0, 0.0, 0.0)] * k
-    return tuple(State(multiplicity, n + 1, chrom, energies[n], f[n], dips[n], pol[n][0], pol[n][1], confs[n])
-                 for n in range(k))
+    return tuple([State(multiplicity, n, chrom, e, fn, dn, pn[0], pn[1], cn)
+                  for n, e, fn, dn, pn, cn in zip(range(1, k + 1), energies, f, dips, pol, confs)])
 
 
 def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0: np.ndarray | None = None,

@@ -116,9 +116,14 @@ def _factor_function(settings: BondOrderBeta):
         def factor(order):
             rho = k * (a - b * order)
             return np.exp(-rho) * (1.0 + rho * (1.0 + rho * (0.4 + rho / 15.0))) / s_ref
+        factor.s_ref = s_ref
         return factor
     r_ref, delta = settings.reference_length, settings.decay_length
-    return lambda order: np.exp(-((a - b * order) - r_ref) / delta)
+
+    def factor(order):
+        return np.exp(-((a - b * order) - r_ref) / delta)
+    factor.s_ref = float(slater_pi_overlap(r_ref, settings.slater_exponent))  # for the kernel form
+    return factor
 
 
 class CoreOfBondOrders:
@@ -145,7 +150,7 @@ class CoreOfBondOrders:
         self.kernel_form = None
         if diag_update is None:
             k = settings.slater_exponent / BOHR_ANGSTROM
-            s_ref = float(slater_pi_overlap(settings.reference_length, settings.slater_exponent))
+            s_ref = self.factor.s_ref  # slater_pi_overlap(r_ref), as the factor function uses it
             self.kernel_form = (core0, np.asarray(i, dtype=np.int64), np.asarray(j, dtype=np.int64),
                                 np.asarray(beta_ref, dtype=float), LAWS.index(settings.law),
                                 settings.length_intercept, settings.length_slope, k, s_ref,
