@@ -410,7 +410,7 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
 def model_for(prep: Prepared, pset: param_registry.ParameterSet, options: Options = Options()) -> Model:
     """The PPP model of one prepared chromophore under a parameter set and the options."""
     sys_ = prep.system
-    labels = [f"atom {i + 1} ({e})" for i, e in zip(sys_.atom_indices, sys_.elements)]
+    labels = [f"atom {i + 1} ({e})" for i, e in zip(np.asarray(sys_.atom_indices).tolist(), sys_.elements)]
     use_vb = pset.bond_order_beta_enabled if options.bond_order_beta is None else options.bond_order_beta
     settings = (pset.bond_order_beta or variable_beta.BondOrderBeta()) if use_vb else None
     model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, prep.coords, pset,
