@@ -190,13 +190,13 @@ class _DIIS:
         n = len(self.slots)  # the extrapolation does not depend on the order of the vectors
         if n != self._size:
             self._resize(n)
-        a, rhs = self._a[:n + 1, :n + 1], self._rhs[:n + 1]
+        a, rhs, a_b = self._views
         # B is a Gram matrix: its largest entry lies on the diagonal (Cauchy-Schwarz); scaled to 1
         scale = max(self._norm[:n])
         if scale > 0:
-            np.divide(self._bm[n], scale, out=self._a[:n, :n])
+            np.divide(self._bm[n], scale, out=a_b)
         else:
-            self._a[:n, :n] = self._bm[n]
+            a_b[...] = self._bm[n]
         _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a and rhs)
         if info != 0 or not coef.dot(coef) <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
             try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
@@ -216,6 +216,8 @@ class _DIIS:
         self._a[:n, n] = -1.0
         self._a[n, n] = 0.0
         self._size = n
+        # the size-n system, its right-hand side and its B block, as views kept until the size changes
+        self._views = (self._a[:n + 1, :n + 1], self._rhs[:n + 1], self._a[:n, :n])
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
