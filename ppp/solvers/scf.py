@@ -107,9 +107,10 @@ class _DIIS:
     copy is made; :meth:`push` copies a given pair in (for callers that hold their own arrays). The
     overlap matrix B_ij = <e_i|e_j> is extended by one row per iteration (one matrix-vector product,
     O(n N^2) for n stored vectors, instead of O(n^2 N^2) for rebuilding it); the extrapolation is one
-    more product. The bordered DIIS matrices [[B, -1], [-1, 0]] and right-hand sides are made once per
-    subspace size, on first use, so an extrapolation costs a handful of numpy calls (it runs at every
-    SCF iteration, where at dye size each call counts next to a ~10 us eigensolve).
+    more product. The bordered DIIS matrices [[B, -1], [-1, 0]] of all subspace sizes share one array
+    (and the right-hand sides one vector), whose border is moved when the size changes, so an
+    extrapolation costs a handful of numpy calls (it runs at every SCF iteration, where at dye size
+    each call counts next to a ~10 us eigensolve).
     The extrapolation does not depend on the scale of the error vectors (B is normalised), so the SCF
     may store any fixed multiple of FP - PF.
     """
@@ -119,10 +120,9 @@ class _DIIS:
         self.slots: list[int] = []  # ring-buffer slots in insertion order
         self._norm = [0.0] * space  # B_ss of each slot
         self._b = np.zeros((space, space))
-        # the bordered DIIS matrices [[B, -1], [-1, 0]] of every size m <= space are the leading
-        # (m + 1) x (m + 1) blocks of one array, and the right-hand sides (0, ..., 0, -1) the leading
-        # m + 1 entries of one vector: the subspace only grows (to ``space``, then stays), so the
-        # border of the current size is never overwritten by a smaller B (see :meth:`extrapolate`)
+        # the bordered DIIS matrix [[B, -1], [-1, 0]] of size m <= space is the leading (m + 1) x (m + 1)
+        # block of one array, its right-hand side (0, ..., 0, -1) the leading m + 1 entries of one
+        # vector; :meth:`_resize` moves the border when m changes (in an SCF run m only grows)
         self._a = np.empty((space + 1, space + 1))
         self._a.fill(-1.0)  # (np.full costs five times as much)
         self._rhs = np.zeros(space + 1)
