@@ -202,10 +202,14 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
 def shared_exchange(scf, model: Model, options: Options) -> np.ndarray | None:
     """The exchange integrals (ij|ab) of the SCF orbitals (:func:`ppp.solvers.cis.exchange_integrals`),
     made once for the dense CIS singlet and triplet matrices, which both contain them; None when they
-    are not both dense CIS matrices (the iterative solver, RPA singlets, or no roots of one kind)."""
+    are not both dense CIS matrices (the iterative solver, RPA singlets, or no roots of one kind), and
+    above ``cis.DENSE_MAX_CONFIGURATIONS`` configurations: the array is as large as a CIS matrix, and
+    kept through the singlet eigensolve it would raise the peak memory of a forced dense run."""
     o = model.n_occ
+    v = model.n_centres - o
     if (options.response != "cis" or not options.n_singlets or not options.n_triplets
-            or cis_solver.choose_solver(o, model.n_centres - o, options.cis_solver) != "dense"):
+            or o * v > cis_solver.DENSE_MAX_CONFIGURATIONS
+            or cis_solver.choose_solver(o, v, options.cis_solver) != "dense"):
         return None
     return cis_solver.exchange_integrals(scf.mo_coeff, model.gamma, o)
 

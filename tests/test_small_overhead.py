@@ -65,6 +65,10 @@ def test_driver_shares_the_exchange_only_for_two_dense_cis_solves():
     for opts in (Options(response="rpa"), Options(cis_solver="iterative"), Options(n_triplets=0),
                  Options(n_singlets=0)):
         assert driver.shared_exchange(res, model, opts) is None
+    # a forced dense run above the automatic limit keeps its two-array peak memory: nothing shared
+    (_, big), = build_models(mol_from_smiles("C=C" * 24), Options(bond_order_beta=False))
+    assert big.n_occ * (big.n_centres - big.n_occ) > cis.DENSE_MAX_CONFIGURATIONS
+    assert driver.shared_exchange(None, big, Options(cis_solver="dense")) is None
 
 
 @pytest.mark.parametrize("smiles", DYES + ["C1=CC=C1"])  # cyclobutadiene: the stability-following path
