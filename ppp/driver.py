@@ -278,8 +278,10 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
     model0 = model
     with maybe_stage(timer, "SCF"):
         model, scf = ground_scf(model0, options, index, dens_guess=dens_guess)
-    with maybe_stage(timer, "CIS singlets"):
-        exchange = shared_exchange(scf, model, options)
+    exchange = None
+    if options.response == "cis":
+        with maybe_stage(timer, "CIS singlets"):
+            exchange = shared_exchange(scf, model, options)
     sing = singlet_roots(scf, model, options, timer, exchange)
     if _unstable(sing):
         # the SCF may sit on a saddle point: look for a lower, stable closed-shell solution

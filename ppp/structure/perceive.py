@@ -146,7 +146,7 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     try:
         Chem.Kekulize(kek, clearAromaticFlags=True)
     except Exception:
-        _check_radicals(mol)  # a radical is the better reason (checked first, as for Kekule structures)
+        _check_radicals(mol)  # a radical is reported before a failed Kekule assignment (as it always was)
         raise ParseError("cannot assign a Kekule structure to the aromatic rings") from None
 
     # every RDKit property is read once per atom and bond into plain lists (each RDKit call costs about
