@@ -130,8 +130,8 @@ def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model
         f = [0.0] * k
         pol = [(None, "-")] * k
         dips = [(0.0, 0.0, 0.0)] * k
-    return tuple(State(multiplicity, n + 1, chrom, energies[n], f[n], dips[n], pol[n][0], pol[n][1], confs[n])
-                 for n in range(k))
+    return tuple([State(multiplicity, n, chrom, e, fn, dn, pn[0], pn[1], cn)
+                  for n, e, fn, dn, pn, cn in zip(range(1, k + 1), energies, f, dips, pol, confs)])
 
 
 def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0: np.ndarray | None = None,
@@ -199,11 +199,28 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
     return replace(res, energies=e[order], amplitudes=res.amplitudes[order])
 
 
-def singlet_roots(scf, model, options, timer=None) -> cis_solver.CISResult | rpa.RPAResult:
+def shared_exchange(scf, model: Model, options: Options) -> np.ndarray | None:
+    """The exchange integrals (ij|ab) of the SCF orbitals (:func:`ppp.solvers.cis.exchange_integrals`),
+    made once for the dense CIS singlet and triplet matrices, which both contain them; None when they
+    are not both dense CIS matrices (the iterative solver, RPA singlets, or no roots of one kind), and
+    above ``cis.DENSE_MAX_CONFIGURATIONS`` configurations: the array is as large as a CIS matrix, and
+    kept through the singlet eigensolve it would raise the peak memory of a forced dense run."""
+    o = model.n_occ
+    v = model.n_centres - o
+    if (options.response != "cis" or not options.n_singlets or not options.n_triplets
+            or o * v > cis_solver.DENSE_MAX_CONFIGURATIONS
+            or cis_solver.choose_solver(o, v, options.cis_solver) != "dense"):
+        return None
+    return cis_solver.exchange_integrals(scf.mo_coeff, model.gamma, o)
+
+
+def singlet_roots(scf, model, options, timer=None, exchange: np.ndarray | None = None
+                  ) -> cis_solver.CISResult | rpa.RPAResult:
     """Singlets by the chosen response method on the SCF orbitals, without the solvent's state-specific
     term (the stability tests look at these roots; :func:`solvent_corrected` is applied afterwards).
     An RPA that finds the reference unstable falls back to CIS, which then decides (through a
-    non-positive root) whether the reference must be followed."""
+    non-positive root) whether the reference must be followed.
+    exchange : optional :func:`shared_exchange` of ``scf`` for the dense CIS matrix."""
     if options.response == "rpa":
         with maybe_stage(timer, "RPA singlets"):
             try:
@@ -213,7 +230,7 @@ def singlet_roots(scf, model, options, timer=None) -> cis_solver.CISResult | rpa
                 pass
     with maybe_stage(timer, "CIS singlets"):
         return cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_singlets, 1,
-                                 solver=options.cis_solver, dipole_coords=model.coords)
+                                 solver=options.cis_solver, dipole_coords=model.coords, exchange=exchange)
 
 
 def _unstable(sing: cis_solver.CISResult) -> bool:
@@ -261,10 +278,17 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
     model0 = model
     with maybe_stage(timer, "SCF"):
         model, scf = ground_scf(model0, options, index, dens_guess=dens_guess)
-    sing = singlet_roots(scf, model, options, timer)
+    exchange = None
+    if options.response == "cis":
+        with maybe_stage(timer, "CIS singlets"):
+            exchange = shared_exchange(scf, model, options)
+    sing = singlet_roots(scf, model, options, timer, exchange)
     if _unstable(sing):
         # the SCF may sit on a saddle point: look for a lower, stable closed-shell solution
+        scf_before = scf
         model, scf, sing = seek_stable(model0, model, scf, sing, options, index, timer)
+        if scf is not scf_before:
+            exchange = None  # other orbitals
     # A non-positive CIS root means the closed-shell SCF solution is not a minimum (Cizek & Paldus 1967
     # instability). Singlet instability that cannot be followed to a minimum: the closed-shell ground
     # state itself is wrong (biradical character), so the molecule is refused. Triplet instability
@@ -284,7 +308,7 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
                 f"state ({sing.energies[0]:.3f} eV): the first-order solvent treatment breaks down here")
     with maybe_stage(timer, "CIS triplets"):
         trip = cis_solver.kernel(scf.mo_energy, scf.mo_coeff, model.gamma, model.n_occ, options.n_triplets, 3,
-                                 solver=options.cis_solver)
+                                 solver=options.cis_solver, exchange=exchange)
     notes = []
     if options.response == "rpa" and not isinstance(sing, rpa.RPAResult):
         notes.append("RPA singlets not possible (A - B or A + B not positive definite: instability of the "
@@ -392,7 +416,7 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
 def model_for(prep: Prepared, pset: param_registry.ParameterSet, options: Options = Options()) -> Model:
     """The PPP model of one prepared chromophore under a parameter set and the options."""
     sys_ = prep.system
-    labels = [f"atom {i + 1} ({e})" for i, e in zip(sys_.atom_indices, sys_.elements)]
+    labels = [f"atom {i + 1} ({e})" for i, e in zip(np.asarray(sys_.atom_indices).tolist(), sys_.elements)]
     use_vb = pset.bond_order_beta_enabled if options.bond_order_beta is None else options.bond_order_beta
     settings = (pset.bond_order_beta or variable_beta.BondOrderBeta()) if use_vb else None
     model = build_model(sys_.types, sys_.core_charges, sys_.n_electrons, sys_.bonds, prep.coords, pset,

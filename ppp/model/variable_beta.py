@@ -116,9 +116,14 @@ def _factor_function(settings: BondOrderBeta):
         def factor(order):
             rho = k * (a - b * order)
             return np.exp(-rho) * (1.0 + rho * (1.0 + rho * (0.4 + rho / 15.0))) / s_ref
+        factor.s_ref = s_ref
         return factor
     r_ref, delta = settings.reference_length, settings.decay_length
-    return lambda order: np.exp(-((a - b * order) - r_ref) / delta)
+
+    def factor(order):
+        return np.exp(-((a - b * order) - r_ref) / delta)
+    factor.s_ref = float(slater_pi_overlap(r_ref, settings.slater_exponent))  # for the kernel form
+    return factor
 
 
 class CoreOfBondOrders:
@@ -135,20 +140,28 @@ class CoreOfBondOrders:
 
     def __init__(self, core0, i, j, beta_ref, settings: BondOrderBeta, diag0=None, diag_update=None):
         self.core0, self.i, self.j, self.beta_ref = core0, i, j, beta_ref
+        # flat (row-major) positions of the (i, j) and (j, i) elements: one-dimensional indexing costs a
+        # fifth of the two-dimensional kind at dye size, and it runs at every SCF iteration
+        n = np.shape(core0)[0]
+        i_, j_ = np.asarray(i, dtype=np.intp), np.asarray(j, dtype=np.intp)
+        self._ij, self._ji = i_ * n + j_, j_ * n + i_
         self.factor = _factor_function(settings)
         self.diag0, self.diag_update = diag0, diag_update
         self.kernel_form = None
         if diag_update is None:
             k = settings.slater_exponent / BOHR_ANGSTROM
-            s_ref = float(slater_pi_overlap(settings.reference_length, settings.slater_exponent))
+            s_ref = self.factor.s_ref  # slater_pi_overlap(r_ref), as the factor function uses it
             self.kernel_form = (core0, np.asarray(i, dtype=np.int64), np.asarray(j, dtype=np.int64),
                                 np.asarray(beta_ref, dtype=float), LAWS.index(settings.law),
                                 settings.length_intercept, settings.length_slope, k, s_ref,
                                 settings.reference_length, settings.decay_length)
 
     def __call__(self, dens: np.ndarray) -> np.ndarray:
-        c = self.core0.copy()
-        c[self.i, self.j] = c[self.j, self.i] = self.beta_ref * self.factor(dens[self.i, self.j])
+        c = self.core0.copy()  # C-ordered (ndarray.copy's default): ravel() below is a view of it
+        beta = self.beta_ref * self.factor(np.take(dens, self._ij))  # P_ij of the (row-major) flattened P
+        flat = c.ravel()
+        flat[self._ij] = beta
+        flat[self._ji] = beta
         if self.diag_update is not None:
             np.fill_diagonal(c, self.diag0 + self.diag_update(dens))
         return c

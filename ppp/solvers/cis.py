@@ -44,9 +44,22 @@ def pair_products(ca: np.ndarray, cb: np.ndarray) -> np.ndarray:
     return (ca[:, :, None] * cb[:, None, :]).reshape(n, -1)
 
 
+def exchange_integrals(mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int) -> np.ndarray:
+    """Exchange-type integrals (ij|ab) = sum_mu,nu C_mu,i C_mu,j gamma_mu,nu C_nu,a C_nu,b, eV, as an
+    (n_occ^2, n_vir^2) array [ij, ab]. Both spin-adapted CIS matrices contain them (module doc), so a
+    caller that builds the singlet and the triplet matrix of the same orbitals can make them once
+    and pass them to :func:`cis_matrix` / :func:`kernel` (``exchange=``)."""
+    co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
+    return (pair_products(co, co).T @ gamma) @ pair_products(cv, cv)
+
+
 def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int,
-               multiplicity: int = 1) -> np.ndarray:
-    """Dense CIS matrix A (n_occ*n_vir, n_occ*n_vir), eV; index ia = i * n_vir + a."""
+               multiplicity: int = 1, exchange: np.ndarray | None = None) -> np.ndarray:
+    """Dense CIS matrix A (n_occ*n_vir, n_occ*n_vir), eV; index ia = i * n_vir + a.
+
+    exchange : optional :func:`exchange_integrals` of the same orbitals (read, not changed); made here
+        when not given. The matrix is the same either way, bit for bit.
+    """
     if multiplicity not in (1, 3):
         raise ValueError("multiplicity must be 1 or 3")
     co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
@@ -54,7 +67,13 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
     # exchange-type (ij|ab) as [ij, ab]; the Coulomb-type part is computed first straight into the
     # result, then the exchange is subtracted through a swapped view ([ij, ab] -> [ia, jb]). Two large
     # arrays only: fresh large temporaries cost page faults that took longer than the products here.
-    j_int = (pair_products(co, co).T @ gamma) @ pair_products(cv, cv)
+    if exchange is None:
+        j_int = exchange_integrals(mo_coeff, gamma, n_occ)
+    elif exchange.shape != (o * o, v * v):
+        raise ValueError(f"exchange integrals of shape {exchange.shape} do not fit {o} occupied and {v} "
+                         f"virtual orbitals")
+    else:
+        j_int = exchange
     if multiplicity == 1:
         b = pair_products(co, cv)  # (N, o*v) transition densities
         a = (2.0 * (b.T @ gamma)) @ b
@@ -64,7 +83,7 @@ def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n
         np.negative(a, out=a)
     del j_int
     diag = (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
-    a.flat[::o * v + 1] += diag  # the diagonal as a strided view (no index arrays)
+    a.ravel()[::o * v + 1] += diag  # the diagonal as a strided view (no index arrays, no flat iterator)
     return a
 
 
@@ -93,7 +112,8 @@ def choose_solver(n_occ: int, n_vir: int, solver: str = "auto") -> str:
 
 
 def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int, n_states: int,
-           multiplicity: int = 1, solver: str = "auto", dipole_coords: np.ndarray | None = None) -> CISResult:
+           multiplicity: int = 1, solver: str = "auto", dipole_coords: np.ndarray | None = None,
+           exchange: np.ndarray | None = None) -> CISResult:
     """Lowest ``n_states`` CIS roots (all of them if fewer exist).
 
     Parameters
@@ -105,6 +125,8 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     dipole_coords : optional (N, 3) centre coordinates; when given, the vectors of each degenerate
         level are rotated by :func:`align_degenerate` so that per-state oscillator strengths do not
         depend on the solver
+    exchange : optional :func:`exchange_integrals` of these orbitals for the dense matrix (e.g. shared
+        by the singlet and triplet calls); ignored by the iterative solver
 
     Raises TooLargeError when the dense matrix would exceed ``DENSE_MAX_BYTES``.
     """
@@ -126,12 +148,12 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
             raise TooLargeError(
                 f"dense CIS matrix of {o * v} configurations needs {need / 2**30:.1f} GB; use the "
                 f"iterative solver")
-        a = cis_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity)
+        a = cis_matrix(mo_energy, mo_coeff, gamma, n_occ, multiplicity, exchange)
         # a is symmetric and C-ordered, so a.T is the same matrix in the Fortran order LAPACK works in:
         # no copy of the largest array; the finiteness check follows on the (few) results instead
         w, x = _lowest_eigenpairs(a.T, k_solve)
         del a
-        if not (np.all(np.isfinite(w)) and np.all(np.isfinite(x))):
+        if not (np.isfinite(w).all() and np.isfinite(x).all()):
             raise ConvergenceError("dense CIS eigensolver returned non-finite values")
         x = x.T.reshape(-1, o, v)
     if dipole_coords is not None:
@@ -139,7 +161,7 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     w, x = w[:k], x[:k]
     # fix the arbitrary sign of each root: largest coefficient positive (reproducible output)
     flat = x.reshape(k, -1)
-    sign = np.sign(flat[np.arange(k), np.argmax(np.abs(flat), axis=1)])
+    sign = np.sign(flat[np.arange(k), np.abs(flat).argmax(axis=1)])
     x = x * sign[:, None, None]
     return CISResult(multiplicity, w, x)
 
@@ -181,17 +203,21 @@ def align_degenerate(energies: np.ndarray, amplitudes: np.ndarray, mo_coeff: np.
     (e.g. the two components of an E-type level of a symmetric molecule) keep an arbitrary mixing,
     which leaves their strengths unchanged. A level cut by the last root computed is left alone.
 
-    amplitudes : (k, n_occ, n_vir); coords : (N, 3). Returns the rotated amplitudes.
+    amplitudes : (k, n_occ, n_vir); coords : (N, 3). Returns the rotated amplitudes (a new array), or
+    ``amplitudes`` itself when no level is degenerate.
     """
     k = len(energies)
     if k < 2:
         return amplitudes
+    e = np.asarray(energies).tolist()  # Python floats: the scan below costs a tenth of numpy scalars'
+    if all(b - a >= tol for a, b in zip(e, e[1:])):
+        return amplitudes  # no degenerate level (the common case): nothing to rotate
     out = np.array(amplitudes, copy=True)
     dip = None
     start = 0
     while start < k:
         stop = start + 1
-        while stop < k and energies[stop] - energies[stop - 1] < tol:
+        while stop < k and e[stop] - e[stop - 1] < tol:
             stop += 1
         if stop - start > 1 and stop < k:
             x = out[start:stop].reshape(stop - start, -1)

@@ -58,7 +58,7 @@ class SCFResult:
 def fock_matrix(core: np.ndarray, gamma: np.ndarray, dens: np.ndarray) -> np.ndarray:
     """PPP Fock matrix (N, N), eV, from core h, gamma and density P (equation in the module doc)."""
     f = core - 0.5 * dens * gamma
-    f.ravel()[::f.shape[0] + 1] += gamma @ dens.diagonal()  # the diagonal, as a strided view
+    f.ravel()[::f.shape[0] + 1] += gamma.dot(dens.diagonal())  # the diagonal, as a strided view
     return f
 
 
@@ -78,7 +78,7 @@ JIT_MIN_CENTRES = 1
 def density(mo_coeff: np.ndarray, n_occ: int) -> np.ndarray:
     """Closed-shell density P = 2 C_occ C_occ^T."""
     c = mo_coeff[:, :n_occ]
-    p = c @ c.T
+    p = c.dot(c.T)  # ndarray.dot: the BLAS call of @, without the ufunc dispatch
     p *= 2.0
     return p
 
@@ -95,7 +95,7 @@ def eigh(mat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def commutator(fock: np.ndarray, dens: np.ndarray) -> np.ndarray:
     """SCF error FP - PF (N, N), eV; for symmetric F and P it is FP - (FP)^T: one matrix product."""
-    fp = fock @ dens
+    fp = fock.dot(dens)
     return fp - fp.T
 
 
@@ -107,9 +107,10 @@ class _DIIS:
     copy is made; :meth:`push` copies a given pair in (for callers that hold their own arrays). The
     overlap matrix B_ij = <e_i|e_j> is extended by one row per iteration (one matrix-vector product,
     O(n N^2) for n stored vectors, instead of O(n^2 N^2) for rebuilding it); the extrapolation is one
-    more product. The bordered DIIS matrices [[B, -1], [-1, 0]] and right-hand sides are made once per
-    subspace size, on first use, so an extrapolation costs a handful of numpy calls (it runs at every
-    SCF iteration, where at dye size each call counts next to a ~10 us eigensolve).
+    more product. The bordered DIIS matrices [[B, -1], [-1, 0]] of all subspace sizes share one array
+    (and the right-hand sides one vector), whose border is moved when the size changes, so an
+    extrapolation costs a handful of numpy calls (it runs at every SCF iteration, where at dye size
+    each call counts next to a ~10 us eigensolve).
     The extrapolation does not depend on the scale of the error vectors (B is normalised), so the SCF
     may store any fixed multiple of FP - PF.
     """
@@ -119,8 +120,13 @@ class _DIIS:
         self.slots: list[int] = []  # ring-buffer slots in insertion order
         self._norm = [0.0] * space  # B_ss of each slot
         self._b = np.zeros((space, space))
-        self._a: list = [None] * (space + 1)
-        self._rhs: list = [None] * (space + 1)
+        # the bordered DIIS matrix [[B, -1], [-1, 0]] of size m <= space is the leading (m + 1) x (m + 1)
+        # block of one array, its right-hand side (0, ..., 0, -1) the leading m + 1 entries of one
+        # vector; :meth:`_resize` moves the border when m changes (in an SCF run m only grows)
+        self._a = np.empty((space + 1, space + 1))
+        self._a.fill(-1.0)  # (np.full costs five times as much)
+        self._rhs = np.zeros(space + 1)
+        self._size = 0  # subspace size of the last extrapolation
         self._f = self._e = None
         self._pending = 0
         self.last_norm = np.inf  # B_ss of the pair stored last
@@ -128,12 +134,19 @@ class _DIIS:
             self._allocate(n)
 
     def _allocate(self, n: int) -> None:
-        self._f = np.empty((self.space, n * n))
-        self._e = np.empty((self.space, n * n))
+        space = self.space
+        self._f = np.empty((space, n * n))
+        self._e = np.empty((space, n * n))
         self._shape = (n, n)
-        self._fv = [row.reshape(n, n) for row in self._f]  # N x N views of the slots
-        self._ev = [row.reshape(n, n) for row in self._e]
-        self._dv = [row[::n + 1] for row in self._f]  # the diagonals of the Fock slots
+        self._fv = list(self._f.reshape(space, n, n))  # N x N views of the slots
+        self._ev = list(self._e.reshape(space, n, n))
+        self._dv = list(self._f[:, ::n + 1])  # the diagonals of the Fock slots
+        # views per number m of stored vectors, made once: the leading m rows of the buffers, the
+        # leading m x m block of B, and the bordered system of size m (slicing costs about as much
+        # as the small products themselves)
+        self._fm = [self._f[:m] for m in range(space + 1)]
+        self._em = [self._e[:m] for m in range(space + 1)]
+        self._bm = [self._b[:m, :m] for m in range(space + 1)]
 
     @property
     def focks(self) -> list[np.ndarray]:
@@ -157,7 +170,9 @@ class _DIIS:
             self.slots.pop(0)  # overwrite the oldest
         self.slots.append(slot)
         n = len(self.slots)  # slots 0..n-1 are in use (filled in order, then overwritten in turn)
-        row = self._e[:n] @ self._e[slot]
+        # ndarray.dot: the BLAS call of the @ operator (same numbers) without the ufunc dispatch, which
+        # costs as much as the product at this size
+        row = self._em[n].dot(self._e[slot])
         self._b[slot, :n] = row
         self._b[:n, slot] = row
         self.last_norm = self._norm[slot] = float(row[slot])
@@ -173,32 +188,36 @@ class _DIIS:
 
     def extrapolate(self) -> np.ndarray:
         n = len(self.slots)  # the extrapolation does not depend on the order of the vectors
-        a, rhs = self._a[n], self._rhs[n]
-        if a is None:
-            a = self._a[n] = _bordered(n)
-            rhs = self._rhs[n] = np.concatenate([np.zeros(n), [-1.0]])
+        if n != self._size:
+            self._resize(n)
+        a, rhs, a_b = self._views
         # B is a Gram matrix: its largest entry lies on the diagonal (Cauchy-Schwarz); scaled to 1
         scale = max(self._norm[:n])
         if scale > 0:
-            np.divide(self._b[:n, :n], scale, out=a[:n, :n])
+            np.divide(self._bm[n], scale, out=a_b)
         else:
-            a[:n, :n] = self._b[:n, :n]
-        _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a)
-        if info != 0 or not coef @ coef <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
+            a_b[...] = self._bm[n]
+        _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a and rhs)
+        if info != 0 or not coef.dot(coef) <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
             try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
                 coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
             except np.linalg.LinAlgError:
                 coef = None
             if coef is None or not np.isfinite(coef).all():
                 return self._fv[self.slots[-1]]
-        return (coef[:n] @ self._f[:n]).reshape(self._shape)
+        return coef[:n].dot(self._fm[n]).reshape(self._shape)
 
-
-def _bordered(n: int) -> np.ndarray:
-    """(n + 1, n + 1) template [[B, -1], [-1, 0]] of the DIIS equations; B (n x n) is written in later."""
-    a = np.full((n + 1, n + 1), -1.0)
-    a[-1, -1] = 0.0
-    return a
+    def _resize(self, n: int) -> None:
+        """Set the border of the size-n bordered system: row and column n -1, corner 0, rhs e_n (-1)."""
+        old = self._size
+        self._rhs[old] = 0.0
+        self._rhs[n] = -1.0
+        self._a[n, :n] = -1.0  # (untouched -1 when the size grows; rewritten should it ever shrink)
+        self._a[:n, n] = -1.0
+        self._a[n, n] = 0.0
+        self._size = n
+        # the size-n system, its right-hand side and its B block, as views kept until the size changes
+        self._views = (self._a[:n + 1, :n + 1], self._rhs[:n + 1], self._a[:n, :n])
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
@@ -237,8 +256,9 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     gamma2 = gamma + gamma
     ring = _DIIS(diis_space if use_diis else 1, n)
     fd = np.empty((n, n))
+    fd_t = fd.T
     eye = np.eye(n) if level_shift else None
-    core_change = 0.0
+    old_core = None
     # With DIIS, |FD - DF|^2 comes with the new row of B; max |x| >= |x|_F / N, so while |FD - DF|_F
     # exceeds N conv_tol_grad / 2 (with a margin for its rounding) the error test must fail and the
     # energy is not needed yet. The energy of the iteration before is then computed when first needed,
@@ -249,15 +269,14 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     prev = None
     for it in range(1, max_iter + 1):
         if core_update is not None:
-            new_core = core_update(d + d)
-            core_change = float(np.abs(new_core - core).max()) if it > 1 else np.inf
-            core = new_core
+            old_core = core
+            core = core_update(d + d)
         fock, err, fdiag = ring.target()
         np.multiply(d, gamma, out=fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
         np.subtract(core, fock, out=fock)
-        fdiag += gamma2 @ d.diagonal()  # the diagonal, as a strided view
-        np.matmul(fock, d, out=fd)
-        np.subtract(fd, fd.T, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
+        fdiag += gamma2.dot(d.diagonal())  # the diagonal, as a strided view
+        fock.dot(d, out=fd)
+        np.subtract(fd, fd_t, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
         if use_diis:
             ring.commit()
         if not lazy or ring.last_norm < gate:
@@ -268,7 +287,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
             # the energy test allows for rounding in E (|E| ~ 10^4 eV at 1,000 centres); FP - PF is
             # antisymmetric: its largest entry is its largest |entry|
             if (abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and 2.0 * float(err.max()) < conv_tol_grad
-                    and core_change < core_tol):
+                    and _core_change(core, old_core, core_update is not None, it) < core_tol):
                 return True, it, d + d
         else:
             e = None
@@ -279,10 +298,21 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
             f_use = ring.extrapolate()
         if level_shift:
             f_use = f_use + level_shift * (eye - d)  # shift of the virtual space, I - P/2 (Saunders & Hillier 1973)
-        c = eigh(f_use)[1][:, :n_occ]
-        new = c @ c.T
+        _, c, info = _lapack.dsyevd(f_use)  # eigh() inlined: a function call less per iteration
+        if info != 0:
+            c = np.linalg.eigh(f_use)[1]
+        c = c[:, :n_occ]
+        new = c.dot(c.T)
         d = (1.0 - damping) * new + damping * d if damping else new
     return False, max_iter, d + d
+
+
+def _core_change(core: np.ndarray, old_core: np.ndarray | None, updated: bool, it: int) -> float:
+    """max |change of the core| in iteration ``it`` of :func:`iterate` (0 without a core update, infinite
+    in the first iteration); evaluated only when the other convergence tests have passed."""
+    if not updated:
+        return 0.0
+    return float(np.abs(core - old_core).max()) if it > 1 else np.inf
 
 
 def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 100,

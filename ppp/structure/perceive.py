@@ -132,6 +132,14 @@ def _donor(sym: str, nsig: int, fc: int) -> bool:
     return False
 
 
+def _check_radicals(mol: Chem.Mol) -> None:
+    """RadicalError naming the first atom with an unpaired electron, if there is one."""
+    for i in range(mol.GetNumAtoms()):
+        atom = mol.GetAtomWithIdx(i)
+        if atom.GetNumRadicalElectrons():
+            raise RadicalError(f"radical: {_atom_name(atom)} has an unpaired electron")
+
+
 def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     """Find the pi-systems of a sanitized RDKit molecule.
 
@@ -141,22 +149,20 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     """
     # atoms and bonds fetched by index once: iterating RDKit's GetAtoms()/GetBonds() sequences costs a
     # Python-level length check per element (measured: a third of this function's time)
-    for i in range(mol.GetNumAtoms()):
-        atom = mol.GetAtomWithIdx(i)
-        if atom.GetNumRadicalElectrons():
-            raise RadicalError(f"radical: {_atom_name(atom)} has an unpaired electron")
     kek = Chem.Mol(mol)
     try:
         Chem.Kekulize(kek, clearAromaticFlags=True)
     except Exception:
+        _check_radicals(mol)  # a radical is reported before a failed Kekule assignment (as it always was)
         raise ParseError("cannot assign a Kekule structure to the aromatic rings") from None
 
     # every RDKit property is read once per atom and bond into plain lists (each RDKit call costs about
     # as much as a few lines of Python; the rules below then run on the lists)
     n_atoms = kek.GetNumAtoms()
     all_atoms = [kek.GetAtomWithIdx(i) for i in range(n_atoms)]
+    if any([a.GetNumRadicalElectrons() for a in all_atoms]):  # (Kekulize leaves radical counts alone)
+        _check_radicals(mol)
     sym = [a.GetSymbol() for a in all_atoms]
-    nsig = [a.GetDegree() + a.GetTotalNumHs() for a in all_atoms]
     charge = [a.GetFormalCharge() for a in all_atoms]
     all_bonds = [kek.GetBondWithIdx(i) for i in range(kek.GetNumBonds())]
     ends = [(b.GetBeginAtomIdx(), b.GetEndAtomIdx()) for b in all_bonds]
@@ -165,6 +171,8 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     for i, j in ends:
         neighbours[i].append(j)
         neighbours[j].append(i)
+    # sigma bonds: the atom's degree (its bonds, i.e. len(neighbours)) plus its hydrogens
+    nsig = [len(nb) + a.GetTotalNumHs() for nb, a in zip(neighbours, all_atoms)]
 
     def hypervalent(i: int) -> bool:  # _is_hypervalent on the lists
         return sym[i] in _NON_CONJUGATING_CENTRES and (

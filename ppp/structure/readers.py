@@ -27,7 +27,7 @@ def mol_from_smiles(smiles: str) -> Chem.Mol:
     if not isinstance(smiles, str) or not smiles.strip():
         raise ParseError("empty SMILES")
     text = smiles.strip()
-    if any(ch.isspace() for ch in text):
+    if len(text.split(maxsplit=1)) > 1:  # white space inside (str.split splits where str.isspace holds)
         raise ParseError("unparsable SMILES (contains white space)")
     with rdBase.BlockLogs():
         mol = Chem.MolFromSmiles(text, sanitize=False)
