@@ -248,11 +248,14 @@ def frontier_guess(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarra
     return out
 
 
-#: Subspace matrices up to this size are diagonalised completely (LAPACK dsyevd); larger ones are
+#: Subspace matrices of m rows are diagonalised completely (LAPACK dsyevd) when m is at most this many
+#: times the n eigenpairs wanted, or at most ``FULL_SUBSPACE_EIGEN_MIN``; larger ones are
 #: tridiagonalised and only the wanted eigenpairs computed (:func:`_lowest_tridiagonal`). Measured with
-#: one BLAS thread for 16-24 wanted pairs: equal at 30, 0.15 against 0.21 ms at 45, 0.23 against 0.32 ms
-#: at 60, 0.58 against 0.77 ms at 100 (the Davidson subspace of dye-sized molecules holds 16-70).
-FULL_SUBSPACE_EIGEN_MAX = 40
+#: one BLAS thread: for 24 wanted pairs equal at 40 rows; for 11 pairs (the Davidson iterations that
+#: do not restart) 51 against 60 us at 25 rows, 89 against 130 us at 40, 131 against 204 us at 50;
+#: for 16-24 pairs 0.23 against 0.32 ms at 60 and 0.58 against 0.77 ms at 100.
+FULL_SUBSPACE_EIGEN_RATIO = 1.7
+FULL_SUBSPACE_EIGEN_MIN = 24
 
 
 def _lowest_tridiagonal(a: np.ndarray, n: int):
@@ -293,7 +296,7 @@ def _lowest_eigh(a: np.ndarray, n: int):
     directly: the generic wrappers cost as much as the solve at these sizes), numpy's solver should a
     LAPACK step fail. ``a`` is not modified."""
     m = a.shape[0]
-    if m <= FULL_SUBSPACE_EIGEN_MAX or n >= m:
+    if m <= max(FULL_SUBSPACE_EIGEN_MIN, FULL_SUBSPACE_EIGEN_RATIO * n) or n >= m:
         # a symmetric C-ordered matrix is its own transpose: a.T is the Fortran-ordered matrix LAPACK
         # reads, so no copy is made before LAPACK's own
         w, v, info = _syevd(a.T, compute_v=1, lower=0)
