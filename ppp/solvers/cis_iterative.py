@@ -76,14 +76,10 @@ LARGE_CENTRES = 150
 REORTH = 1e-4
 #: Subspace of the dye-sized problems (up to ``LARGE_CENTRES`` centres) for k roots: 2 k + 2 Ritz vectors
 #: kept at a restart, which happens once the subspace would exceed 2 k + 2 + DYE_GROWTH k vectors
-#: (davidson's defaults, k + max(4, k // 2) and keep + 4 k, restart about every second iteration for
-#: 10 roots). Measured on the 71 dyes of more than 500 configurations in dye_library(200, seed=7),
-#: 10 + 1 singlets and 10 triplets: 28.6 instead of 36.4 iterations and 206 instead of 244
-#: sigma-vectors per solve; each iteration costs more (a larger small eigenproblem, longer Gram-Schmidt
-#: projections), so the time gain is smaller (docs/performance.md).
+#: (davidson's defaults restart about every second iteration for 10 roots). On the 71 dyes of more than
+#: 500 configurations in dye_library(200, seed=7), 10 + 1 singlets and 10 triplets: 28.3 instead of 36.4
+#: iterations and 206 instead of 244 sigma-vectors per solve, but dearer iterations (docs/performance.md).
 DYE_GROWTH = 6
-
-
 #: Start-vector admixture (see :func:`davidson`).
 NOISE = 1e-3
 #: Corrections per unconverged root and Davidson iteration (see :func:`davidson`).
