@@ -327,8 +327,8 @@ def test_subspace_eigensolver_on_repeated_eigenvalues_and_a_split_matrix():
         np.testing.assert_allclose(w[:16], lam[:16], rtol=0, atol=1e-12)
         np.testing.assert_allclose(v[:, :16].T @ v[:, :16], np.eye(16), rtol=0, atol=1e-13)
         assert np.max(np.abs(a @ v[:, :16] - v[:, :16] * w[:16])) < 1e-12
-    # small matrices take the full dsyevd route: same contract
-    small = _symmetric_with_spectrum(lam[:30], 4)
+    # small matrices (and those with many of their pairs wanted) take the full dsyevd route: same contract
+    small = _symmetric_with_spectrum(lam[:cis_iterative.FULL_SUBSPACE_EIGEN_MIN], 4)
     w, v = cis_iterative._lowest_eigh(small, 8)
     np.testing.assert_allclose(w[:8], lam[:8], rtol=0, atol=1e-12)
 
@@ -356,3 +356,80 @@ def test_single_gram_schmidt_pass_keeps_the_block_orthonormal():
     np.testing.assert_array_equal(idx, np.arange(8))
     np.testing.assert_allclose(out @ out.T, np.eye(8), rtol=0, atol=1e-13)
     assert np.max(np.abs(out @ basis.T)) < 1e-13
+
+
+# dye-sized molecules above the dense/Davidson switch (cis.DENSE_MAX_CONFIGURATIONS), where "auto" runs
+# the Davidson solver with its dye-sized subspace settings and the looser check root
+HEXAPHENYLTRIPHENYLENE = ("c1ccc(cc1)c1cc2c3cc(c4ccccc4)c(c4ccccc4)cc3c3cc(c4ccccc4)c(c4ccccc4)cc3c2cc1"
+                          "c1ccccc1")  # 54 centres, threefold axis: degenerate pairs among the lowest roots
+TRIS_TERPHENYLYL_BENZENE = ("c1ccc(cc1)c1ccc(cc1)c1ccc(cc1)c1cc(cc(c1)c1ccc(cc1)c1ccc(cc1)c1ccccc1)c1ccc(cc1)"
+                            "c1ccc(cc1)c1ccccc1")  # 60 centres, threefold axis
+CYANINE_49 = "CN(C)/C=C" + "/C=C" * 22 + "/C=[N+](C)C"  # 49 centres, long polymethine
+PUSH_PULL_56 = ("c1ccc(cc1)N(c1ccccc1)c1ccc(o1)c1ccc(s1)/N=N/c1ccc(s1)c1ccc2cc(ccc2c1)c1cnc(cn1)c1ccc(s1)"
+                "/N=N/C=O")  # from ppp.batch.synthetic.dye_library(200, seed=7)
+
+
+@pytest.mark.parametrize("smiles", [HEXAPHENYLTRIPHENYLENE, TRIS_TERPHENYLYL_BENZENE, CYANINE_49, PUSH_PULL_56])
+def test_dye_sized_davidson_equals_dense_through_the_driver(smiles):
+    """40-60 centres with the default "auto" solver (Davidson above the switch) against the dense
+    eigensolver: energies to 1e-8 eV, oscillator strengths to 1e-6, every complete degenerate level
+    spanning the same space (the targets of the speed work; dense LAPACK is the reference)."""
+    opts = dict(n_singlets=10, n_triplets=10)
+    auto = compute(smiles, **opts).chromophores[0]
+    m = auto.model
+    assert m.n_occ * (m.n_centres - m.n_occ) > cis.DENSE_MAX_CONFIGURATIONS  # the Davidson path runs
+    dense = compute(smiles, cis_solver="dense", **opts).chromophores[0]
+    for a, b, xa, xb in ((dense.singlets, auto.singlets, dense.singlet_amplitudes, auto.singlet_amplitudes),
+                         (dense.triplets, auto.triplets, dense.triplet_amplitudes, auto.triplet_amplitudes)):
+        ea = np.array([s.energy_ev for s in a])
+        np.testing.assert_allclose([s.energy_ev for s in b], ea, rtol=0, atol=1e-8)
+        np.testing.assert_allclose([s.oscillator_strength for s in b], [s.oscillator_strength for s in a],
+                                   rtol=0, atol=1e-6)
+        for lo, hi in _levels(ea):
+            pa = xa[lo:hi].reshape(hi - lo, -1)
+            pb = xb[lo:hi].reshape(hi - lo, -1)
+            assert np.max(np.abs(pa.T @ pa - pb.T @ pb)) < 1e-6
+
+
+def test_hexaphenyltriphenylene_has_degenerate_pairs_that_davidson_returns():
+    """Law of symmetry: a threefold axis gives doubly degenerate E states. The Davidson solver (with the
+    start-vector admixture giving every species a foothold) returns both members of each pair."""
+    model, res = _model(HEXAPHENYLTRIPHENYLENE)
+    o = model.n_occ
+    w = cis_iterative.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, 1).energies
+    dense = cis.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, 1, solver="dense").energies
+    np.testing.assert_allclose(w, dense, rtol=0, atol=1e-8)
+    assert np.sum(np.diff(dense) < 1e-8) >= 2
+
+
+def test_per_root_tolerances_converge_each_root_to_its_own():
+    """A looser tolerance on the last root (the check root of the degeneracy test) leaves the others at
+    theirs: Q diag(lambda) Q^T with known eigenvalues (law of linear algebra); the loose root's Ritz value
+    lies within its residual of the eigenvalue (Bauer-Fike bound for a symmetric matrix)."""
+    lam = np.r_[1.0, 1.5, 2.0, 2.0, 2.7, 3.1, np.linspace(3.5, 40.0, 294)]
+    a = _symmetric_with_spectrum(lam, 13)
+    tol = np.r_[np.full(5, 1e-10), 1e-3]
+    w, x, _, _ = cis_iterative.davidson(lambda rows: rows @ a, np.diag(a).copy(), 6, tol=tol,
+                                        rng=np.random.default_rng(14))
+    res = np.linalg.norm(x @ a - w[:, None] * x, axis=1)
+    assert np.all(res < tol)
+    np.testing.assert_allclose(w[:5], lam[:5], rtol=0, atol=1e-10)
+    assert abs(w[5] - lam[5]) <= res[5]
+    with pytest.raises(ValueError):  # one value per root, or one for all
+        cis_iterative.davidson(lambda rows: rows @ a, np.diag(a).copy(), 6, tol=np.full(4, 1e-8))
+
+
+def test_check_root_is_loose_and_the_wanted_roots_are_not():
+    """kernel(n_check=1): the wanted roots keep residuals below CONV_TOL (checked against the explicit
+    CIS matrix), the check root below CHECK_TOL, and its energy within CHECK_TOL of the dense one."""
+    model, res = _model(PUSH_PULL_56)
+    o = model.n_occ
+    a = cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, 1)
+    dense = np.linalg.eigvalsh(a)[:11]
+    got = cis_iterative.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 11, 1, n_check=1)
+    x = got.amplitudes.reshape(11, -1)
+    resid = np.linalg.norm(x @ a - got.energies[:, None] * x, axis=1)
+    assert np.all(resid[:10] < cis_iterative.CONV_TOL)
+    assert resid[10] < cis_iterative.CHECK_TOL
+    np.testing.assert_allclose(got.energies[:10], dense[:10], rtol=0, atol=1e-8)
+    assert abs(got.energies[10] - dense[10]) < cis_iterative.CHECK_TOL

@@ -140,7 +140,8 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     k_solve = k + 1 if dipole_coords is not None and k < o * v else k
     if method == "iterative" and k_solve < o * v:
         from . import cis_iterative
-        res = cis_iterative.kernel(mo_energy, mo_coeff, gamma, n_occ, k_solve, multiplicity)
+        # the extra root of the degeneracy check needs its energy only (cis_iterative.CHECK_TOL)
+        res = cis_iterative.kernel(mo_energy, mo_coeff, gamma, n_occ, k_solve, multiplicity, n_check=k_solve - k)
         w, x = res.energies, res.amplitudes
     else:
         need = 8.0 * (o * v) ** 2

@@ -44,6 +44,16 @@ from ..errors import ConvergenceError
 #: Residual 2-norm (eV) below which a root counts as converged. The energy error is of the order of
 #: the residual squared over the gap to the next root; amplitudes are accurate to residual / gap.
 CONV_TOL = 1e-7
+#: Residual 2-norm (eV) for "check" roots (``n_check`` of :func:`kernel`): roots computed only so that
+#: the degeneracy test of :func:`ppp.solvers.cis.align_degenerate` knows whether the last wanted level
+#: is complete. Only their energy is used (never their vector), and a Ritz value with residual r lies
+#: within r of an eigenvalue whatever the gaps (Bauer-Fike; for a symmetric matrix |theta - lambda| <= r),
+#: and within r^2 / gap of it when the root is separated by ``gap`` from the rest of the spectrum
+#: (Kato-Temple): at 1e-6 eV, about 1e-10 eV for the gaps of 0.01 eV and more seen in dyes, against
+#: the 1e-6 eV that separates a degenerate level from a split one. Each wanted root keeps ``CONV_TOL``
+#: (its own residual is tested, so a looser check root cannot spoil it). Measured on the 71 dyes of
+#: more than 500 configurations in dye_library(200, seed=7): 5 % less time for 10 + 1 singlets.
+CHECK_TOL = 1e-6
 #: Frontier orbitals per side of the window used for start vectors and preconditioning at 1,000 centres
 #: (measured on a 398-centre ribbon, 11 singlets: 234 sigma-vectors with the diagonal alone, 180 with
 #: 24, 165 with 32, 152 with 48, whose set-up then costs more than it saves).
@@ -64,6 +74,12 @@ LARGE_CENTRES = 150
 #: below 1e-14 along the subspace. Kahan-Parlett's 0.5 re-projected 78 % of the blocks of the 50-60-centre
 #: dyes of dye_library(300, seed=1), this 25 %.
 REORTH = 1e-4
+#: Subspace of the dye-sized problems (up to ``LARGE_CENTRES`` centres) for k roots: 2 k + 2 Ritz vectors
+#: kept at a restart, which happens once the subspace would exceed 2 k + 2 + DYE_GROWTH k vectors
+#: (davidson's defaults restart about every second iteration for 10 roots). On the 71 dyes of more than
+#: 500 configurations in dye_library(200, seed=7), 10 + 1 singlets and 10 triplets: 28.3 instead of 36.4
+#: iterations and 206 instead of 244 sigma-vectors per solve, but dearer iterations (docs/performance.md).
+DYE_GROWTH = 6
 #: Start-vector admixture (see :func:`davidson`).
 NOISE = 1e-3
 #: Corrections per unconverged root and Davidson iteration (see :func:`davidson`).
@@ -228,11 +244,14 @@ def frontier_guess(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarra
     return out
 
 
-#: Subspace matrices up to this size are diagonalised completely (LAPACK dsyevd); larger ones are
+#: Subspace matrices of m rows are diagonalised completely (LAPACK dsyevd) when m is at most this many
+#: times the n eigenpairs wanted, or at most ``FULL_SUBSPACE_EIGEN_MIN``; larger ones are
 #: tridiagonalised and only the wanted eigenpairs computed (:func:`_lowest_tridiagonal`). Measured with
-#: one BLAS thread for 16-24 wanted pairs: equal at 30, 0.15 against 0.21 ms at 45, 0.23 against 0.32 ms
-#: at 60, 0.58 against 0.77 ms at 100 (the Davidson subspace of dye-sized molecules holds 16-70).
-FULL_SUBSPACE_EIGEN_MAX = 40
+#: one BLAS thread: for 24 wanted pairs equal at 40 rows; for 11 pairs (the Davidson iterations that
+#: do not restart) 51 against 60 us at 25 rows, 89 against 130 us at 40, 131 against 204 us at 50;
+#: for 16-24 pairs 0.23 against 0.32 ms at 60 and 0.58 against 0.77 ms at 100.
+FULL_SUBSPACE_EIGEN_RATIO = 1.7
+FULL_SUBSPACE_EIGEN_MIN = 24
 
 
 def _lowest_tridiagonal(a: np.ndarray, n: int):
@@ -273,7 +292,7 @@ def _lowest_eigh(a: np.ndarray, n: int):
     directly: the generic wrappers cost as much as the solve at these sizes), numpy's solver should a
     LAPACK step fail. ``a`` is not modified."""
     m = a.shape[0]
-    if m <= FULL_SUBSPACE_EIGEN_MAX or n >= m:
+    if m <= max(FULL_SUBSPACE_EIGEN_MIN, FULL_SUBSPACE_EIGEN_RATIO * n) or n >= m:
         # a symmetric C-ordered matrix is its own transpose: a.T is the Fortran-ordered matrix LAPACK
         # reads, so no copy is made before LAPACK's own
         w, v, info = _syevd(a.T, compute_v=1, lower=0)
@@ -351,7 +370,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
     guess : optional (m, dim) start vectors used instead of unit vectors (m sets n_guess)
     precondition : optional callable (residuals (m, dim), ritz vectors (m, dim), theta (m,)) -> corrections,
         replacing the diagonal preconditioner of the first step of each iteration
-    tol : residual 2-norm for convergence
+    tol : residual 2-norm for convergence: one value for all roots, or (n_roots,) values, one per root
     max_iter : Rayleigh-Ritz steps allowed
     max_space : subspace size that triggers a restart (default keep + (depth + 2) n_roots)
     keep : Ritz vectors kept at a restart (default n_roots + max(4, n_roots // 2))
@@ -366,6 +385,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
     diag = np.asarray(diag, dtype=float).ravel()
     dim = diag.shape[0]
     k = min(int(n_roots), dim)
+    tols = np.broadcast_to(np.asarray(tol, dtype=float), (int(n_roots),))[:k]
     extra = max(4, k // 2)
     if guess is not None:
         basis = np.array(guess, dtype=float, copy=True)
@@ -397,7 +417,11 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
     changed = True  # the subspace grew or restarted since the last Rayleigh-Ritz step
     for it in range(1, max_iter + 1):
         if changed:  # (not after a pass that only locked roots: the final check reuses its Ritz pairs)
-            theta_all, s = _lowest_eigh(0.5 * (sub + sub.T), min(m, keep))
+            # Ritz vectors of the wanted roots only, unless this step may restart (then ``keep`` of them:
+            # the restart below needs them, and todo <= the roots not locked yet)
+            n_open = int(np.count_nonzero(~locked[:min(k, m)])) or k
+            restart = m + min(depth * n_open, max_space - keep) > max_space
+            theta_all, s = _lowest_eigh(0.5 * (sub + sub.T), min(m, keep if restart else k))
             changed = False
         kk = min(k, m)
         theta, s_k = theta_all[:kk], s[:, :kk]
@@ -408,7 +432,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
         xr = np.matmul(s_k[:, active].T, vw[:, :m])  # Ritz vectors and their images, (2, a, dim)
         resid = xr[1] - theta[active, None] * xr[0]
         res_norm[active] = np.sqrt(np.einsum("ij,ij->i", resid, resid))
-        conv = res_norm[active] < tol
+        conv = res_norm[active] < tols[active]
         if kk == k and active.size == k and np.all(conv):
             return theta, xr[0], it, n_mv
         locked[active[conv]] = True
@@ -422,6 +446,8 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
             new = resid[~conv] / _safe(shifts[:, None] - diag[None, :])
         if m + min(depth * todo.size, max_space - keep) > max_space:
             # restart from the lowest Ritz vectors and the previous iteration's ones ("GD+k")
+            if s.shape[1] < min(m, keep):  # (only after a final check that re-opened a root)
+                theta_all, s = _lowest_eigh(0.5 * (sub + sub.T), min(m, keep))
             cols = s[:, :min(m, keep)]
             if prev is not None:
                 p = np.zeros((m, prev.shape[1]))
@@ -459,7 +485,7 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
             break  # no new direction: the subspace is exhausted
     raise ConvergenceError(
         f"Davidson CIS did not converge: largest residual {np.max(res_norm):.1e} eV after {max_iter} "
-        f"iterations (tolerance {tol:.0e})")
+        f"iterations (tolerance {tols.min():.0e})")
 
 
 def orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e-6, reorth: float = 0.5):
@@ -515,7 +541,8 @@ def orthonormal_complement(basis: np.ndarray, new: np.ndarray, drop: float = 1e-
 
 def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int, n_states: int,
            multiplicity: int = 1, *, tol: float = CONV_TOL, max_iter: int = 200, seed: int = 20240501,
-           window: int | None = None, max_space: int | None = None, n_guess: int | None = None):
+           window: int | None = None, max_space: int | None = None, n_guess: int | None = None,
+           n_check: int = 0):
     """Lowest ``n_states`` CIS roots by the matrix-free Davidson method.
 
     Same arguments and result as :func:`ppp.solvers.cis.kernel` (a ``CISResult``); memory O(N^2)
@@ -523,7 +550,10 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     ``seed`` fixes the generator of the start-vector admixture (see :func:`davidson`), so results are
     reproducible. ``window``: frontier orbitals per side for the start vectors and the two-level
     preconditioner (:func:`frontier_guess`, :func:`window_preconditioner`); None: :func:`window_size`;
-    0 for unit start vectors and the plain diagonal preconditioner.
+    0 for unit start vectors and the plain diagonal preconditioner. ``n_check``: the last ``n_check`` of
+    the ``n_states`` roots are wanted for their energies only (the degeneracy test of
+    :func:`ppp.solvers.cis.align_degenerate`) and converged to ``CHECK_TOL`` (if looser than ``tol``);
+    their vectors are returned but must not be used as accurate.
     """
     from .cis import CISResult
 
@@ -543,6 +573,9 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     def matvec(rows):
         return apply(op, rows, multiplicity)
 
+    tols = np.full(k, float(tol))
+    if n_check > 0:
+        tols[max(0, k - int(n_check)):] = max(float(tol), CHECK_TOL)
     extra = {}
     large = n > LARGE_CENTRES
     if window is None:
@@ -553,7 +586,8 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
         n_guess = n_guess or min(o * v, max(2 * k + 2, k + 8))
         extra.update(depth=1, keep=n_guess, max_space=max_space or 5 * n_guess)
     else:
-        extra.update(max_space=max_space)
+        keep = min(o * v, 2 * k + 2)
+        extra.update(keep=keep, max_space=max_space or keep + DYE_GROWTH * k)
     if window > 0:
         n_guess = min(o * v, n_guess or k + max(4, k // 2))
         eig = window_eigen(mo_energy, mo_coeff, gamma, n_occ, multiplicity, window)
@@ -562,5 +596,5 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
                                                         window, eig))
     else:
         extra.update(n_guess=n_guess)
-    w, x, _, _ = davidson(matvec, diag, k, tol=tol, max_iter=max_iter, rng=np.random.default_rng(seed), **extra)
+    w, x, _, _ = davidson(matvec, diag, k, tol=tols, max_iter=max_iter, rng=np.random.default_rng(seed), **extra)
     return CISResult(multiplicity, w, x.reshape(k, o, v))
