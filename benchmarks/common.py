@@ -51,13 +51,20 @@ def best_of(fn, repeat: int = 5, min_time: float = 0.05):
     return min(_per_call(fn, min_time) for _ in range(repeat))
 
 
-def paired_best(fns, repeat: int = 9, min_time: float = 0.02):
+def paired_best(fns, repeat: int = 9, min_time: float = 0.02, rounds=None):
     """Best (smallest) time of each function, measured in interleaved rounds so that load changes on a
-    shared machine hit all of them alike. Returns a list of seconds per call."""
+    shared machine hit all of them alike. Returns a list of seconds per call.
+
+    rounds : optional list, per function, of the number of rounds it takes part in (the first ones;
+        default ``repeat`` each), for functions too slow to time in every round; min_time may likewise be
+        a list (0 for one call per round)."""
     best = [np.inf] * len(fns)
-    for _ in range(repeat):
+    rounds = rounds or [repeat] * len(fns)
+    times = min_time if isinstance(min_time, (list, tuple)) else [min_time] * len(fns)
+    for r in range(max(rounds)):
         for k, fn in enumerate(fns):
-            best[k] = min(best[k], _per_call(fn, min_time))
+            if r < rounds[k]:
+                best[k] = min(best[k], _per_call(fn, times[k]))
     return best
 
 
