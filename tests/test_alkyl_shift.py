@@ -158,3 +158,15 @@ def test_fit_recovers_a_known_alkyl_shift(tmp_path):
     out = tmp_path / "mine.toml"
     out.write_text(text)
     assert params.load(str(out)).alkyl_shift["N.amino"] == pytest.approx(round(res.x[0], 4))
+
+
+def test_counts_do_not_depend_on_explicit_hydrogens():
+    # a 3D record with explicit hydrogen atoms (as from an SDF file) counts the same alkyl groups
+    from rdkit import Chem
+
+    for smiles in ("CN(C)c1ccc(cc1)[N+](=O)[O-]", "COc1ccccc1", "CC(F)(F)c1ccccc1"):
+        mol = mol_from_smiles(smiles)
+        (plain,) = perceive(mol)
+        (with_h,) = perceive(Chem.AddHs(mol))
+        assert plain.alkyl_counts.tolist() == with_h.alkyl_counts.tolist()
+        assert plain.atom_indices.tolist() == with_h.atom_indices.tolist()
