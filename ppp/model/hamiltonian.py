@@ -86,7 +86,7 @@ class Model:
     n_electrons : int, pi electrons (even)
     e_core : float, core-core repulsion, eV
     coords : (N, 3) A, principal-axis frame
-    ip, u : (N,) eV, atomic parameters used
+    ip, u : (N,) eV, atomic parameters used (ip after the alkyl shift of :func:`build_model`)
     types : tuple of N centre type names
     bonds : (M, 2) local index pairs
     gamma_formula : str
