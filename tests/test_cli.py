@@ -136,6 +136,7 @@ def test_parameters_command_lists_and_shows(cli):
     assert code == 0 and "classic (default)" in out
     code, out, _ = cli("parameters", "classic")
     assert code == 0 and "N.aza" in out and "C-C" in out
+    assert "alkyl shift" in out and "N.amino 0.790" in out  # the [alkyl_shift] table of classic
 
 
 def test_real_process_exit_status_and_no_traceback():

@@ -33,6 +33,9 @@ def main(args) -> int:
         print(f"bond-order beta: {'on' if s.bond_order_beta_enabled else 'off'} by default for "
               f"{', '.join('-'.join(p) for p in bo.pairs)}; r = {bo.length_intercept} - {bo.length_slope} p A, "
               f"{bo.law} law, r_ref {bo.reference_length} A")
+    if s.alkyl_shift:
+        print("alkyl shift (I lowered per saturated carbon on the centre, eV): "
+              + ", ".join(f"{t} {v:.3f}" for t, v in s.alkyl_shift.items()))
     if s.uncertainty:
         print("band uncertainty (MAE per class, eV): "
               + ", ".join(f"{k} {v:.2f}" for k, v in s.uncertainty.items()))
