@@ -12,7 +12,7 @@ import pytest
 
 from ppp.driver import Options, build_models, compute
 from ppp.errors import ConvergenceError, InputError, TooLargeError
-from ppp.solvers import cis, cis_iterative, scf
+from ppp.solvers import cis, cis_iterative, eigen, scf
 from ppp.structure.readers import mol_from_smiles
 
 CORONENE = "c1cc2ccc3ccc4ccc5ccc6ccc1c7c2c3c4c5c67"
@@ -311,7 +311,7 @@ def test_subspace_eigensolver_equals_numpy(m, n):
     a = np.random.default_rng(m).standard_normal((m, m))
     a = a + a.T
     a_copy = a.copy()
-    w, v = cis_iterative._lowest_tridiagonal(a, n)
+    w, v = eigen.lowest_tridiagonal(a, n)
     np.testing.assert_array_equal(a, a_copy)  # input untouched
     np.testing.assert_allclose(w, np.linalg.eigvalsh(a)[:n], rtol=0, atol=1e-12)
     np.testing.assert_allclose(v.T @ v, np.eye(n), rtol=0, atol=1e-13)
@@ -433,3 +433,20 @@ def test_check_root_is_loose_and_the_wanted_roots_are_not():
     assert resid[10] < cis_iterative.CHECK_TOL
     np.testing.assert_allclose(got.energies[:10], dense[:10], rtol=0, atol=1e-8)
     assert abs(got.energies[10] - dense[10]) < cis_iterative.CHECK_TOL
+
+
+@pytest.mark.parametrize("m", [12, 28, 29, 80, 150, 151, 200])
+def test_dense_eigen_routes_equal_numpy(m):
+    """Each route of eigen.lowest_eigenpairs (dsyevd up to FULL_MAX rows, the tridiagonal route up to
+    TRIDIAGONAL_MAX, dsyevr above) gives numpy's lowest eigenvalues and exact orthonormal eigenvectors,
+    also with a threefold and a twofold degenerate level among the wanted ones (law of linear algebra:
+    Q diag(lam) Q^T has the eigenvalues lam)."""
+    lam = np.r_[0.5, 1.0, 1.0, 1.0, 2.0, 2.0, np.linspace(3.0, 30.0, m - 6)]
+    for a in (_symmetric_with_spectrum(lam, m), _symmetric_with_spectrum(np.sort(np.random.default_rng(m)
+                                                                                    .uniform(0, 9, m)), m + 1)):
+        ref = np.linalg.eigvalsh(a)[:11]
+        w, x, info = eigen.lowest_eigenpairs(np.asfortranarray(a), 11)
+        assert info == 0
+        np.testing.assert_allclose(w, ref, rtol=0, atol=1e-12)
+        np.testing.assert_allclose(x.T @ x, np.eye(11), rtol=0, atol=1e-12)
+        assert np.max(np.abs(a @ x - x * w)) < 1e-11

@@ -17,9 +17,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.linalg
 
 from ..errors import ConvergenceError, InputError, TooLargeError
+from .eigen import lowest_eigenpairs
 
 
 @dataclass(frozen=True)
@@ -167,25 +167,10 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     return CISResult(multiplicity, w, x)
 
 
-#: Up to this dimension the full divide-and-conquer eigensolver (dsyevd) is cheaper than the subset
-#: solver (dsyevr) for ~10 roots (measured: 97 vs 127 us at 35, 456 vs 391 us at 80 configurations).
-FULL_EIGEN_MAX = 64
-
-
 def _lowest_eigenpairs(a: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """Lowest k eigenpairs (w (k,), x (n, k)) of the symmetric Fortran-ordered matrix ``a``, which is
-    overwritten. LAPACK is called directly: for the small matrices of dye-sized molecules the generic
-    scipy.linalg.eigh wrapper costs as much as the solve."""
-    n = a.shape[0]
-    if n <= FULL_EIGEN_MAX or k >= n:
-        w, x, info = scipy.linalg.lapack.dsyevd(a, compute_v=1, lower=0, overwrite_a=1)
-        w, x = w[:k], x[:, :k]
-    else:
-        w, x, m, _, info = scipy.linalg.lapack.dsyevr(a, compute_v=1, range="I", il=1, iu=k, lower=0,
-                                                       overwrite_a=1)
-        if info == 0 and m != k:
-            info = -1
-        w, x = w[:k], x[:, :k]
+    """Lowest k eigenpairs (w (k,), x (n, k)) of the symmetric Fortran-ordered matrix ``a``, which may be
+    overwritten: LAPACK called directly, by the route fastest at its size (:mod:`ppp.solvers.eigen`)."""
+    w, x, info = lowest_eigenpairs(a, k, overwrite=True)
     if info != 0:
         raise ConvergenceError(f"dense CIS eigensolver failed (LAPACK info {info})")
     return w, x

@@ -36,10 +36,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg.lapack import dormqr as _ormqr, dstein as _stein, dsterf as _sterf, dsyevd as _syevd, \
-    dpotrf as _potrf, dsytrd as _sytrd, dtrtri as _trtri
+from scipy.linalg.lapack import dpotrf as _potrf, dsyevd as _syevd, dtrtri as _trtri
 
 from ..errors import ConvergenceError
+from .eigen import lowest_tridiagonal
 
 #: Residual 2-norm (eV) below which a root counts as converged. The energy error is of the order of
 #: the residual squared over the gap to the next root; amplitudes are accurate to residual / gap.
@@ -246,7 +246,7 @@ def frontier_guess(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarra
 
 #: Subspace matrices of m rows are diagonalised completely (LAPACK dsyevd) when m is at most this many
 #: times the n eigenpairs wanted, or at most ``FULL_SUBSPACE_EIGEN_MIN``; larger ones are
-#: tridiagonalised and only the wanted eigenpairs computed (:func:`_lowest_tridiagonal`). Measured with
+#: tridiagonalised and only the wanted eigenpairs computed (:func:`ppp.solvers.eigen.lowest_tridiagonal`). Measured with
 #: one BLAS thread: for 24 wanted pairs equal at 40 rows; for 11 pairs (the Davidson iterations that
 #: do not restart) 51 against 60 us at 25 rows, 89 against 130 us at 40, 131 against 204 us at 50;
 #: for 16-24 pairs 0.23 against 0.32 ms at 60 and 0.58 against 0.77 ms at 100.
@@ -254,41 +254,9 @@ FULL_SUBSPACE_EIGEN_RATIO = 1.7
 FULL_SUBSPACE_EIGEN_MIN = 24
 
 
-def _lowest_tridiagonal(a: np.ndarray, n: int):
-    """Lowest ``n`` eigenpairs of the symmetric matrix ``a`` (m, m): Householder tridiagonalisation
-    (dsytrd), all eigenvalues of the tridiagonal matrix by the root-free QR method (dsterf), eigenvectors
-    of the wanted ones by inverse iteration (dstein, which re-orthogonalises the vectors of close
-    eigenvalues), back-transformation by the Householder reflectors (dormqr on the sub-diagonal block,
-    as LAPACK's dormtr does). Returns (w (n,), v (m, n)), or None when a LAPACK step reports failure."""
-    m = a.shape[0]
-    c, d, e, tau, info = _sytrd(a.T, lower=1)  # a symmetric: a.T is the Fortran-ordered same matrix
-    if info != 0:
-        return None
-    e = e[:m - 1]
-    w, info = _sterf(d, e)
-    if info != 0:
-        return None
-    w = w[:n]
-    iblock = np.ones(m, dtype=np.int32)  # one block: inverse iteration on the whole matrix, also where
-    # it splits (exact zeros off the diagonal, tested with a diagonal matrix)
-    isplit = np.zeros(m, dtype=np.int32)
-    isplit[0] = m
-    z, info = _stein(d, e, w, iblock, isplit)
-    if info != 0:
-        return None
-    # A = Q T Q^T with Q = diag(1, Q'), Q' the product of the reflectors stored below the sub-diagonal
-    qz, _, info = _ormqr("L", "N", c[1:, :m - 1], tau[:m - 1], z[1:, :n], max(1, 64 * n))
-    if info != 0:
-        return None
-    v = np.empty((m, n))
-    v[0] = z[0, :n]
-    v[1:] = qz
-    return w, v
-
-
 def _lowest_eigh(a: np.ndarray, n: int):
     """Lowest ``n`` (or more) eigenpairs of the symmetric matrix ``a``, ascending: LAPACK dsyevd for the
-    whole of a small matrix, :func:`_lowest_tridiagonal` for a subset of a larger one (LAPACK called
+    whole of a small matrix, :func:`ppp.solvers.eigen.lowest_tridiagonal` for a subset of a larger one (LAPACK called
     directly: the generic wrappers cost as much as the solve at these sizes), numpy's solver should a
     LAPACK step fail. ``a`` is not modified."""
     m = a.shape[0]
@@ -299,7 +267,7 @@ def _lowest_eigh(a: np.ndarray, n: int):
         if info == 0:
             return w, v
     else:
-        out = _lowest_tridiagonal(a, n)
+        out = lowest_tridiagonal(a, n)
         if out is not None:
             return out
     return np.linalg.eigh(a)
