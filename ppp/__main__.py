@@ -1,6 +1,4 @@
 """``python -m ppp`` runs the command line."""
-import sys
+from .cli import run
 
-from .cli import main
-
-sys.exit(main())
+run()

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import signal
 import sys
 
 from . import __version__
@@ -33,7 +34,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    try:
+        parser = build_parser()  # imports the subcommands, and with them numpy, scipy and RDKit
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
     args = parser.parse_args(argv)
     if not getattr(args, "command", None):
         parser.print_help()
@@ -58,5 +63,14 @@ def main(argv: list[str] | None = None) -> int:
         return 3
 
 
+def run() -> None:
+    """Process entry point (the ``ppp`` script, ``python -m ppp``): :func:`main`, then exit with its status.
+    Once the command has returned, its work is done and saved; a Ctrl-C that lands while the interpreter
+    shuts down (pool threads, atexit handlers) is ignored rather than printed as a stray traceback."""
+    code = main()
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    sys.exit(code)
+
+
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    run()

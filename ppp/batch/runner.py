@@ -8,6 +8,7 @@ N workers or a Dask cluster hold the same rows in the same order.
 from __future__ import annotations
 
 import concurrent.futures as cf
+import contextlib
 import fcntl
 import json
 import multiprocessing
@@ -361,17 +362,34 @@ def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary
             raise PPPError("a worker process stopped unexpectedly (out of memory, or killed); the results "
                            "written so far are kept: run the same command again to continue") from None
         raise
-    progress.finish()
-    backend.close(cancel=interrupted)
-    summary.wall_seconds = time.perf_counter() - t0
-    complete = not interrupted and done + summary.written == expected
-    writer.close(complete=complete, run_record=_record(t0, backend, summary))
-    if complete:
-        rewrite(cfg.output)
-    with ResultsFile(cfg.output) as rf:
-        summary.counts = _counts(rf)
+    with _ctrl_c_deferred():  # the file is being finished: a Ctrl-C now would only leave it half-written
+        progress.finish()
+        backend.close(cancel=interrupted)
+        summary.wall_seconds = time.perf_counter() - t0
+        complete = not interrupted and done + summary.written == expected
+        writer.close(complete=complete, run_record=_record(t0, backend, summary))
+        if complete:
+            rewrite(cfg.output)
+        with ResultsFile(cfg.output) as rf:
+            summary.counts = _counts(rf)
     summary.complete, summary.interrupted = complete, interrupted
     return summary
+
+
+@contextlib.contextmanager
+def _ctrl_c_deferred():
+    """Ignore SIGINT inside the block (main thread only; elsewhere signals are not delivered anyway):
+    closing, compacting and counting the results file run to the end once started. A Ctrl-C pressed
+    meanwhile is dropped: the batch is ending already, and the file it leaves is a finished one."""
+    try:
+        previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    except ValueError:  # not the main thread
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
 
 
 def _record(t0: float, backend, summary: BatchSummary) -> dict:
