@@ -126,6 +126,18 @@ def test_davidson_reports_non_convergence():
         cis_iterative.davidson(lambda rows: rows @ a, np.diag(a).copy(), 4, max_iter=2)
 
 
+def test_davidson_reports_an_exhausted_subspace():
+    """A tolerance no residual can meet (0): once the subspace spans the whole space no new direction is
+    left (no restart: ``keep`` is the whole space), and the solver says so instead of iterating on or
+    returning unconverged roots."""
+    rng = np.random.default_rng(6)
+    a = rng.standard_normal((12, 12))
+    a = a + a.T + np.diag(3.0 * np.arange(12))
+    with pytest.raises(ConvergenceError, match="no new search direction"):
+        cis_iterative.davidson(lambda rows: rows @ a, np.diag(a).copy(), 2, tol=0.0, max_space=12, keep=12,
+                               max_iter=500, rng=np.random.default_rng(1))
+
+
 def test_iterative_agrees_with_pyscf_tda_on_the_same_hamiltonian():
     """PySCF RHF + TDA with our h and gamma as a custom Hamiltonian (eri[i,i,j,j] = gamma_ij)."""
     pyscf = pytest.importorskip("pyscf")
@@ -206,6 +218,20 @@ def test_davidson_variants_equal_dense(smiles, window, multiplicity):
     for lo, hi in _levels(dense.energies):
         if hi - lo == 1:
             assert abs(abs(float(np.vdot(itr.amplitudes[lo], dense.amplitudes[lo]))) - 1.0) < 1e-8
+
+
+@pytest.mark.parametrize("multiplicity", [1, 3])
+def test_large_system_settings_equal_dense(monkeypatch, multiplicity):
+    """The settings used above ``LARGE_CENTRES`` (frontier-window start and preconditioner of
+    ``window_size``, one correction per root and iteration, the larger subspace) switched on for a
+    40-centre dye, where the dense matrix is still cheap: the same roots (1e-8 eV, the solver contract)."""
+    model, res = _model(STILBAZOLIUM)
+    o = model.n_occ
+    dense = cis.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, multiplicity, solver="dense")
+    monkeypatch.setattr(cis_iterative, "LARGE_CENTRES", model.n_centres - 1)
+    assert cis_iterative.window_size(model.n_centres) == 16
+    itr = cis_iterative.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, multiplicity)
+    np.testing.assert_allclose(itr.energies, dense.energies, rtol=0, atol=1e-8)
 
 
 def test_window_matrix_is_the_dense_matrix_restricted_to_the_window():

@@ -449,8 +449,10 @@ def davidson(matvec, diag: np.ndarray, n_roots: int, *, n_guess: int | None = No
                 r2 = vw[1, m:m + n_new] - shifts[:, None] * vw[0, m:m + n_new]
                 new = r2 / _safe(shifts[:, None] - diag[None, :])
             m += n_new
-        if m == m0:
-            break  # no new direction: the subspace is exhausted
+        if m == m0:  # no new direction: the subspace is exhausted
+            raise ConvergenceError(
+                f"Davidson CIS did not converge: largest residual {np.max(res_norm):.1e} eV after {it} "
+                f"iterations (tolerance {tols.min():.0e}); no new search direction is left")
     raise ConvergenceError(
         f"Davidson CIS did not converge: largest residual {np.max(res_norm):.1e} eV after {max_iter} "
         f"iterations (tolerance {tols.min():.0e})")
