@@ -83,10 +83,11 @@ def _core_start(core, gamma, core_charges, n_electrons, n_occ):
 def test_driver_reports_followed_solution_and_refuses_when_following_fails(monkeypatch):
     # Fixed beta explicitly: the saddle point followed here is the one of the table-beta model that
     # PySCF confirms above (model_of builds that model). The default (bond-order beta) path is checked
-    # in the next test. The driver's default (superposed-atoms) start reaches the stable solution
+    # in the next test. The driver's default (Kekule-structure) start reaches the stable solution
     # directly; the core start of the test above lands on the saddle point, which the driver must follow.
     direct = ppp.compute(HEPTACENE, n_singlets=3, n_triplets=3, bond_order_beta=False)
     assert direct.s1.energy_ev > 0
+    monkeypatch.setattr("ppp.driver.kekule_guess", lambda *a, **k: None)  # no Kekule start: the symmetric one
     monkeypatch.setattr("ppp.driver.atomic_start", _core_start)
     res = ppp.compute(HEPTACENE, n_singlets=3, n_triplets=3, bond_order_beta=False)
     assert res.s1.energy_ev > 0
@@ -103,11 +104,12 @@ def test_bond_order_beta_iteration_restarted_to_a_stable_self_consistent_solutio
     # stable (positive CIS singlets), still self-consistent (PySCF's RHF from ppp's density on the final
     # model reproduces ppp's energy, so it is an SCF solution of that model), and lower in energy than
     # the unstable solution it replaces.
-    # The driver's default (superposed-atoms) start reaches the stable solution directly; the core
+    # The driver's default (Kekule-structure) start reaches the stable solution directly; the core
     # start leads the iteration to the unstable one, which is what this test needs.
     from ppp.driver import Options, build_models, ground_scf
     from ppp.structure.readers import mol_from_smiles
     direct = ppp.compute(HEPTACENE, n_singlets=3, n_triplets=3)
+    monkeypatch.setattr("ppp.driver.kekule_guess", lambda *a, **k: None)  # no Kekule start: the symmetric one
     monkeypatch.setattr("ppp.driver.atomic_start", _core_start)
     res = ppp.compute(HEPTACENE, n_singlets=3, n_triplets=3)
     assert np.isclose(res.chromophores[0].e_total, direct.chromophores[0].e_total, atol=1e-6)

@@ -59,7 +59,7 @@ def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets
     for k, prep in enumerate(preps):
         dens0 = warm.get(id(prep)) if warm is not None else None
         model0 = model_for(prep, pset, options)
-        model, scf = ground_scf(model0, options, k, dens0=dens0)
+        model, scf = ground_scf(model0, options, k, dens0=dens0, dens_guess=prep.kekule)  # the driver's start
         opts_k = replace(options, n_singlets=n_singlets)
         res = singlet_roots(scf, model, opts_k, None)  # CIS or RPA as the options say, as the driver does
         if len(res.energies) and res.energies[0] <= 0:

@@ -126,6 +126,48 @@ def _factor_function(settings: BondOrderBeta):
     return factor
 
 
+def bond_sigma_energy(lengths, beta_ref, settings: BondOrderBeta) -> np.ndarray:
+    """Sigma-bond compression energy (eV) of bonds of length r (A) with table beta ``beta_ref`` (eV):
+    the energy that makes the linear relation r = a - b p the stationarity condition of the total energy.
+
+    A bond's pi energy depends on its length through 2 p beta(r) (its two elements of sum_ij P_ij h_ij),
+    so dE_pi/dr = 2 p beta'(r). With
+
+        E_sigma(r) = (2/b) [ (r - a) beta(r) - integral_a^r beta(s) ds ],   dE_sigma/dr = (2/b) (r - a) beta'(r),
+
+    d(E_pi + E_sigma)/dr = 2 beta'(r) (p - (a - r)/b) vanishes exactly at r = a - b p. For a beta linear
+    in r this is a harmonic spring (K/2)(r - a)^2 with K = 2 beta'/b: the balance of pi bond-order forces
+    against sigma-bond compressibility of Longuet-Higgins & Salem (1959) (from memory). The integral is
+    taken by 16-point Gauss-Legendre quadrature (beta(s) is smooth: exact to rounding here).
+    """
+    r = np.asarray(lengths, dtype=float)
+    a, b = settings.length_intercept, settings.length_slope
+    if b == 0.0:  # lengths fixed at a: nothing to compress
+        return np.zeros_like(r)
+    x, w = np.polynomial.legendre.leggauss(16)
+    mid, half = 0.5 * (r + a), 0.5 * (r - a)
+    integral = half * (beta_factor(mid[..., None] + half[..., None] * x, settings) @ w)
+    return (2.0 / b) * np.asarray(beta_ref, dtype=float) * ((r - a) * beta_factor(r, settings) - integral)
+
+
+def model_energy(core0: np.ndarray, types, bonds: np.ndarray, dens: np.ndarray, e_pi: float,
+                 settings: BondOrderBeta) -> float:
+    """Energy of the bond-order-beta model (eV): the pi energy ``e_pi`` of a self-consistent solution
+    (``ChromophoreResult.e_total``: electronic plus core repulsion, plus the reaction field's free energy
+    in a solvent) plus the :func:`bond_sigma_energy` of its varied bonds at the lengths r = a - b P_ij.
+
+    The fixed points of :func:`iterate` are the stationary points of this energy in the orbitals and the
+    lengths together, so where several exist (a long cyanine: bond-equalised and bond-alternating) it
+    tells which is the ground state of the model. core0 : (N, N) core with the table betas (before any
+    bond-order update), eV; dens : (N, N) the solution's density.
+    """
+    bonds = np.asarray(bonds, dtype=int).reshape(-1, 2)
+    mask = variable_bonds(types, bonds, settings)
+    i, j = bonds[mask, 0], bonds[mask, 1]
+    r = bond_length(np.asarray(dens)[i, j], settings)
+    return float(e_pi + np.sum(bond_sigma_energy(r, np.asarray(core0)[i, j], settings)))
+
+
 class CoreOfBondOrders:
     """The core Hamiltonian as a function of the density, for the joint SCF run: the start core with the
     varied betas rebuilt from the bond orders P_ij (steps 1-3 of the module doc) and, with a reaction
