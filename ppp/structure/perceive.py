@@ -199,6 +199,14 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
         if any(unsaturated[j] for j in neighbours[i]):
             in_pi[i] = True
 
+    # an atom of an aromatic ring conjugates through its p orbital whatever it is; left out, the ring
+    # would silently become an open chain (selenophene computed as butadiene), so it must be covered
+    for a in mol.GetAromaticAtoms():
+        i = a.GetIdx()
+        if not in_pi[i]:
+            raise UnsupportedElementError(
+                f"atom {i + 1} ({sym[i]}) belongs to an aromatic ring but is not covered by the pi model")
+
     def alkyl_carbon(j: int) -> bool:  # saturated carbon, no halogen on it (CF3 is not an alkyl group)
         return sym[j] == "C" and nsig[j] == 4 and not in_pi[j] and not any(sym[x] in _HALOGENS for x in neighbours[j])
 
