@@ -97,6 +97,12 @@ def test_salt_counter_ion_is_not_a_chromophore():
     ("c1cc[se]c1", "atom 4 (Se) belongs to an aromatic ring"),
     ("c1ccc2c(c1)[te]c1ccccc12", "(Te) belongs to an aromatic ring"),
     ("c1cc[pH]c1", "(P) belongs to an aromatic ring"),
+    # cumulated double bonds (two orthogonal pi bonds at one atom): refused by name, not as "odd number of
+    # electrons" (phenyl isothiocyanate, aryl azide, allene, ketene)
+    ("S=C=Nc1ccccc1", "atom 2 (C) has two cumulated multiple bonds"),
+    ("c1ccccc1N=[N+]=[N-]", "atom 8 (N) has two cumulated multiple bonds"),
+    ("CC(C)=C=C(C)C", "cumulated"),
+    ("C=C=O", "cumulated"),
 ])
 def test_unsupported_structures_raise_with_reason(smiles, reason):
     with pytest.raises(UnsupportedError, match=reason.replace("(", r"\(").replace(")", r"\)")):

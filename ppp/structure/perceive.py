@@ -190,6 +190,13 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
                 raise UnsupportedElementError(
                     f"atom {x + 1} ({sym[x]}): multiple bond to atom {y + 1} ({sym[y]}) is not covered by the "
                     f"pi model")
+            if unsaturated[x]:
+                # a second multiple bond at the same atom: cumulated (allene, ketene, isocyanate,
+                # isothiocyanate, carbodiimide, azide, diazo), two mutually orthogonal pi bonds, which
+                # one set of parallel p orbitals cannot describe
+                raise UnsupportedError(
+                    f"atom {x + 1} ({sym[x]}) has two cumulated multiple bonds (allene, isothiocyanate, azide "
+                    f"type): orthogonal pi bonds are outside the model; compute the molecule without that group")
         unsaturated[ia] = unsaturated[ib] = True
 
     in_pi = list(unsaturated)
