@@ -474,6 +474,32 @@ def load_parameters(name_or_path: str | None) -> param_registry.ParameterSet:
     return param_registry.load(name_or_path)
 
 
+#: Elements that are not metals (non-metals, metalloids and noble gases); every other element is a metal.
+_NON_METALS = frozenset({"H", "He", "B", "C", "N", "O", "F", "Ne", "Si", "P", "S", "Cl", "Ar", "Ge", "As", "Se", "Br",
+                         "Kr", "Sb", "Te", "I", "Xe", "Rn", "*"})
+#: Groups 1 and 2: as separate ions (Na+, K+, Mg2+ counter-ions of dye salts) they leave the pi-system alone.
+_COUNTER_ION_METALS = frozenset({"Li", "Na", "K", "Rb", "Cs", "Be", "Mg", "Ca", "Sr", "Ba"})
+
+
+def metal_warnings(mol: Chem.Mol) -> tuple[str, ...]:
+    """A warning when the molecule holds a metal the pi model leaves out: any metal bonded to another
+    atom, or a separate ion of any metal outside groups 1 and 2 (e.g. the Zn2+ of a zinc phthalocyanine
+    written as an ion pair). The organic pi-system is still computed (for metallophthalocyanines and
+    -porphyrins the visible bands are mostly ligand pi-pi*), but metal-centred (d-d), charge-transfer and
+    heavy-atom effects are not in the numbers."""
+    found = []
+    for atom in mol.GetAtoms():
+        sym = atom.GetSymbol()
+        if sym in _NON_METALS or sym in found:
+            continue
+        if atom.GetDegree() > 0 or sym not in _COUNTER_ION_METALS:
+            found.append(sym)
+    if not found:
+        return ()
+    return (f"the molecule contains {', '.join(found)}: only its organic pi-system is modelled; metal-centred, "
+            f"charge-transfer and heavy-atom effects are not in the numbers",)
+
+
 def compute(structure: str | Chem.Mol, name: str | None = None, options: Options | None = None,
             timer: StageTimer | None = None, **kwargs) -> MoleculeResult:
     """Predict the pi->pi* excited states of one molecule.
@@ -517,4 +543,5 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
     except PPPError as err:
         raise err.with_molecule(label)
     return MoleculeResult(name=label, smiles=smiles_in, canonical_smiles=canonical, parameters=pset.name,
-                          parameters_sha256=pset.sha256, options=opts, chromophores=tuple(chroms))
+                          parameters_sha256=pset.sha256, options=opts, chromophores=tuple(chroms),
+                          molecule_warnings=metal_warnings(mol))

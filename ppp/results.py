@@ -87,13 +87,16 @@ class MoleculeResult:
     parameters_sha256: str
     options: Options
     chromophores: tuple[ChromophoreResult, ...]
+    #: conditions of the whole molecule the user must know about (e.g. metal atoms outside the model)
+    molecule_warnings: tuple[str, ...] = ()
 
     @property
     def warnings(self) -> tuple[str, ...]:
-        """Warnings of all chromophores, prefixed with the chromophore number when there are several."""
+        """The molecule's warnings, then those of its chromophores (prefixed with the chromophore number
+        when there are several)."""
         many = len(self.chromophores) > 1
-        return tuple((f"chromophore {c.index + 1}: " if many else "") + w
-                     for c in self.chromophores for w in c.warnings)
+        return self.molecule_warnings + tuple((f"chromophore {c.index + 1}: " if many else "") + w
+                                              for c in self.chromophores for w in c.warnings)
 
     @property
     def states(self) -> tuple[State, ...]:

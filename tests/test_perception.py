@@ -113,3 +113,37 @@ def test_unsupported_structures_raise_with_reason(smiles, reason):
 def test_unparsable_smiles(smiles):
     with pytest.raises(ParseError):
         mol_from_smiles(smiles)
+
+
+@pytest.mark.parametrize("smiles, metals", [
+    ("[Li]c1ccccc1", "Li"),  # bonded alkali metal: an organometallic, not a counter-ion
+    ("C[Sn](C)(C)c1ccccc1", "Sn"),
+    ("[cH-]1cccc1.[cH-]1cccc1.[Fe+2]", "Fe"),  # ferrocene written as ions
+    ("O=S(=O)([O-])c1ccc(cc1)/N=N/c1ccc(cc1)N(C)C.[Na+]", None),  # sodium salt of a dye: no warning
+    ("c1ccccc1[O-].[K+]", None),
+    ("c1ccc2ccccc2c1", None),
+])
+def test_metals_outside_the_model_are_named_in_a_warning(smiles, metals):
+    """The organic pi-system is computed, and a metal the model leaves out is named in the result's
+    warnings (shown by ppp run, written to JSON and HDF5); group 1-2 counter-ions are not."""
+    import ppp
+    res = ppp.compute(smiles, n_singlets=1, n_triplets=0)
+    warned = [w for w in res.warnings if "only its organic pi-system is modelled" in w]
+    if metals is None:
+        assert warned == []
+    else:
+        assert len(warned) == 1 and f"contains {metals}:" in warned[0]
+
+
+def test_metal_warning_reaches_json_and_the_saved_record(tmp_path):
+    import json
+
+    import h5py
+
+    import ppp
+    from ppp.io import h5_io, json_io
+    res = ppp.compute("[Li]c1ccccc1", n_singlets=1, n_triplets=0)
+    assert any("contains Li" in w for w in json_io.result_to_dict(res)["warnings"])
+    path = h5_io.save([res], tmp_path / "r.h5")
+    with h5py.File(path, "r") as h5:
+        assert "contains Li" in json.loads(h5["molecules/0"].attrs["warnings"])[0]

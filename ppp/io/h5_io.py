@@ -6,7 +6,7 @@ Layout::
     /                       attrs: format="ppp-record", format_version, program_version, created,
                                    parameters, parameters_sha256
     /parameter_file         the parameter set's TOML text, byte for byte (its SHA-256 is the attr above)
-    /molecules/<k>          attrs: name, smiles, canonical_smiles, options (JSON)
+    /molecules/<k>          attrs: name, smiles, canonical_smiles, options (JSON), warnings (JSON list of str)
       chromophore_<c>/model attrs: n_electrons, core_repulsion_ev, gamma_formula
                             core_ev (N,N), gamma_ev (N,N), core_charges (N,), ip_ev (N,), u_ev (N,),
                             coordinates_angstrom (N,3), types (N,), bonds (M,2), atom_indices (N,)
@@ -66,7 +66,7 @@ def _write(h5: h5py.File, results) -> None:
     for k, res in enumerate(results):
         g = mols.create_group(str(k))
         g.attrs.update({"name": res.name, "smiles": res.smiles, "canonical_smiles": res.canonical_smiles,
-                        "options": json.dumps(res.options.__dict__)})
+                        "options": json.dumps(res.options.__dict__), "warnings": json.dumps(list(res.warnings))})
         for c in res.chromophores:
             cg = g.create_group(f"chromophore_{c.index}")
             m = c.model
