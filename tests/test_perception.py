@@ -103,6 +103,8 @@ def test_salt_counter_ion_is_not_a_chromophore():
     ("c1ccccc1N=[N+]=[N-]", "atom 8 (N) has two cumulated multiple bonds"),
     ("CC(C)=C=C(C)C", "cumulated"),
     ("C=C=O", "cumulated"),
+    # a wildcard atom (attachment point, polymer repeat unit) does not describe a whole molecule
+    ("*c1ccc(*)s1", "is a wildcard (dummy) atom"),
 ])
 def test_unsupported_structures_raise_with_reason(smiles, reason):
     with pytest.raises(UnsupportedError, match=reason.replace("(", r"\(").replace(")", r"\)")):

@@ -163,6 +163,11 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     if any([a.GetNumRadicalElectrons() for a in all_atoms]):  # (Kekulize leaves radical counts alone)
         _check_radicals(mol)
     sym = [a.GetSymbol() for a in all_atoms]
+    if "*" in sym:  # a wildcard / attachment point (fragment or polymer repeat unit): not a whole molecule
+        i = sym.index("*")
+        raise UnsupportedElementError(
+            f"atom {i + 1} (*) is a wildcard (dummy) atom: give the complete molecule (the substituent, or the "
+            f"end groups of an oligomer) instead")
     charge = [a.GetFormalCharge() for a in all_atoms]
     all_bonds = [kek.GetBondWithIdx(i) for i in range(kek.GetNumBonds())]
     ends = [(b.GetBeginAtomIdx(), b.GetEndAtomIdx()) for b in all_bonds]
