@@ -126,6 +126,49 @@ def test_conformer_keeps_double_bond_configuration_and_is_reproducible():
     assert str(dbl[0].GetStereo()) == "STEREOE"
 
 
+def _chain_dihedrals(mol3d, smiles_mol):
+    """Dihedral (deg) of X-C=C-Y along each acyclic C=C double bond of the heavy-atom conformer."""
+    from rdkit.Chem import rdMolTransforms
+    conf = mol3d.GetConformer()
+    out = []
+    for b in smiles_mol.GetBonds():
+        if (b.GetBondType() != Chem.BondType.DOUBLE or b.IsInRing() or b.GetBeginAtom().GetSymbol() != "C"
+                or b.GetEndAtom().GetSymbol() != "C"):
+            continue  # (the terminal C=N+Me2 is no stereo bond: its two methyls are alike)
+        i, j = b.GetBeginAtomIdx(), b.GetEndAtomIdx()
+        ni = [a.GetIdx() for a in b.GetBeginAtom().GetNeighbors() if a.GetIdx() != j]
+        nj = [a.GetIdx() for a in b.GetEndAtom().GetNeighbors() if a.GetIdx() != i]
+        if ni and nj:
+            out.append(abs(rdMolTransforms.GetDihedralDeg(conf, ni[0], i, j, nj[0])))
+    return out
+
+
+def test_conformer_sets_unspecified_chain_double_bonds_trans():
+    """A polymethine chain written without E/Z marks is embedded all-trans along the chain (what the
+    planar depiction draws), for every seed, instead of a random mix of E and Z; a bond given as Z
+    stays Z."""
+    mol = mol_from_smiles("CN(C)C=CC=CC=CC=[N+](C)C")  # heptamethine streptocyanine, no stereo marks
+    for seed in (1, 2, 3):
+        conf, _ = embed_conformer(mol, seed=seed)
+        dihedrals = _chain_dihedrals(conf, mol)
+        assert len(dihedrals) == 3 and min(dihedrals) > 150, (seed, dihedrals)
+    mol_z = mol_from_smiles(r"CN(C)/C=C\C=CC=CC=[N+](C)C")  # first chain bond Z
+    conf, _ = embed_conformer(mol_z, seed=1)
+    first = _chain_dihedrals(conf, mol_z)[0]
+    assert first < 30, first
+
+
+def test_flipped_double_bond_is_detected():
+    """The E/Z check compares the SMILES configuration (read from its bond directions) with the
+    embedded one: a trans-stilbene conformer does not pass for the Z isomer."""
+    from ppp.structure.twist import _check_double_bond_stereo
+    trans, _ = embed_conformer(mol_from_smiles("c1ccccc1/C=C/c1ccccc1"), seed=3)
+    cis = mol_from_smiles("c1ccccc1/C=C\\c1ccccc1")
+    Chem.AssignStereochemistry(cis, cleanIt=True, force=True)
+    with pytest.raises(InputError, match="E/Z configuration"):
+        _check_double_bond_stereo(cis, trans)
+
+
 def test_bad_coordinate_source_is_one_line_error():
     with pytest.raises(InputError, match="coordinates must be one of"):
         Options(coordinates="crystal")

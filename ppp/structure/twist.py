@@ -80,7 +80,11 @@ def embed_conformer(mol: Chem.Mol, seed: int = 42, n_conformers: int = N_CONFORM
     Returns the heavy-atom molecule with that conformer (atom order of ``mol``'s heavy atoms) and the
     force field used. Raises InputError when embedding fails or flips a specified E/Z double bond.
     """
-    work = Chem.AddHs(Chem.Mol(mol))
+    # E/Z as bond stereo (STEREOE/STEREOZ) from the SMILES bond directions: the parser here sanitizes
+    # without assigning stereochemistry, and embedding and the check below read the assigned form
+    ref = Chem.Mol(mol)
+    Chem.AssignStereochemistry(ref, cleanIt=True, force=True)
+    work = Chem.AddHs(_trans_where_unspecified(ref))
     params = AllChem.ETKDGv3()
     params.randomSeed = int(seed)
     params.timeout = EMBED_TIMEOUT_S
@@ -106,8 +110,39 @@ def embed_conformer(mol: Chem.Mol, seed: int = 42, n_conformers: int = N_CONFORM
     energies = [e for _, e in res]
     best = cids[int(np.argmin(energies))]
     out = Chem.Mol(work, confId=best)
-    _check_double_bond_stereo(mol, out)
+    _check_double_bond_stereo(ref, out)
     return Chem.RemoveHs(out), field
+
+
+def _trans_where_unspecified(mol: Chem.Mol) -> Chem.Mol:
+    """Copy of ``mol`` in which every acyclic double bond that could be E or Z but was given without
+    either is set trans along the pi-system: at each end the neighbour that continues the conjugation
+    (an sp2 or sp atom; among several the one of more heavy neighbours, then the lower index).
+
+    Without it the embedding picks E or Z at random for such bonds, so that a polymethine chain written
+    without stereo marks (common for cyanines) could come out with cis bonds and strongly twisted; trans
+    is what the planar depiction draws and the usual configuration of dye chains. Bonds given as E or Z
+    keep their configuration."""
+    work = Chem.Mol(mol)
+    Chem.FindPotentialStereoBonds(work, cleanIt=False)  # open stereo bonds become STEREOANY
+    conj = (Chem.HybridizationType.SP2, Chem.HybridizationType.SP)
+    for bond in work.GetBonds():
+        if bond.GetStereo() != Chem.BondStereo.STEREOANY or bond.IsInRing():
+            continue
+        ends = (bond.GetBeginAtom(), bond.GetEndAtom())
+        picks = []
+        for atom, other in (ends, ends[::-1]):
+            nbrs = [nb for nb in atom.GetNeighbors() if nb.GetIdx() != other.GetIdx() and nb.GetAtomicNum() > 1]
+            if not nbrs:
+                break
+            nbrs.sort(key=lambda nb: (nb.GetHybridization() not in conj, -nb.GetDegree(), nb.GetIdx()))
+            picks.append(nbrs[0].GetIdx())
+        if len(picks) == 2:
+            bond.SetStereoAtoms(picks[0], picks[1])
+            bond.SetStereo(Chem.BondStereo.STEREOTRANS)
+        else:
+            bond.SetStereo(Chem.BondStereo.STEREONONE)
+    return work
 
 
 def _check_double_bond_stereo(mol: Chem.Mol, embedded: Chem.Mol) -> None:
