@@ -24,6 +24,7 @@ from ..driver import Options
 from ..errors import InputError, PPPError, StorageError
 from ..model import params as param_registry
 from . import inputs
+from . import schema as S
 from .progress import Progress
 from .reader import ResultsFile, rewrite
 from .store import ResultsWriter, now_utc
@@ -156,6 +157,13 @@ def _open_output(cfg: BatchConfig, ident: dict, attrs: dict, pset) -> tuple[Resu
                                    f"choose another output file or add --overwrite")
             if rf.complete:
                 return None, rf.n_rows
+            if rf.version != S.FORMAT_VERSION:
+                # rows computed now would lose their warnings in the older layout, and copying the old
+                # rows into the new one would show them as "no warnings" when none were recorded
+                raise StorageError(f"'{out}' was started by an older ppp (results format version {rf.version}, "
+                                   f"without per-molecule warnings) and is not complete; this ppp does not add "
+                                   f"rows to it: finish it with the ppp that started it, or add --overwrite to "
+                                   f"start again")
             done, interrupted, committed = rf.n_rows, rf.interrupted, rf.committed
         if interrupted:
             # killed writer: copy its committed rows into a fresh file, swapped in atomically
