@@ -257,6 +257,9 @@ def test_resuming_a_version_1_file_is_refused_with_what_to_do(v1, tmp_path, cli)
     assert part.read_bytes() == before  # left untouched
     with pytest.raises(StorageError, match="format version 1"):
         ResultsWriter.append_to(part, {})
-    assert run(inp, part, jobs=1, overwrite=True).complete
+    summary = run(inp, part, jobs=1, overwrite=True)
+    assert summary.complete
     with ResultsFile(part) as rf:
         assert rf.version == 2 and any(rf.text("warnings"))
+    # the summary printed at the end of a batch says how many results carry warnings (cbd, two-cbd, octacene)
+    assert summary.warned == 3 and "ok                    5 (3 with warnings" in "\n".join(summary.lines())

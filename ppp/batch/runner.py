@@ -65,6 +65,7 @@ class BatchSummary:
     resumed_from: int
     written: int
     counts: dict = field(default_factory=dict)  # whole file: "ok" and each error kind
+    warned: int = 0  # whole file: ok molecules whose result carries warnings
     wall_seconds: float = 0.0
     complete: bool = False
     interrupted: bool = False
@@ -80,7 +81,8 @@ class BatchSummary:
         out = [f"{self.path}: {total} of {self.expected} molecules ({state})",
                f"  computed in this run  {self.written}" + (f" (resumed after {self.resumed_from})"
                                                             if self.resumed_from else ""),
-               f"  ok                    {ok}",
+               f"  ok                    {ok}" + (f" ({self.warned} with warnings: see the 'warnings' column)"
+                                                        if self.warned else ""),
                f"  failed                {total - ok}" + (": " + ", ".join(f"{k} {v}" for k, v in failed.items())
                                                           if failed else ""),
                f"  wall time             {self.wall_seconds:.1f} s, {rate:.1f} molecules/s ({self.workers})"]
@@ -279,7 +281,7 @@ def run_batch(cfg: BatchConfig, stream=None) -> BatchSummary:
         summary = BatchSummary(cfg.output, expected, done, 0)
         if writer is None:
             with ResultsFile(cfg.output) as rf:
-                summary.counts = _counts(rf)
+                summary.counts, summary.warned = _counts(rf), _warned(rf)
             summary.complete = True
             summary.wall_seconds = time.perf_counter() - t0
             summary.workers = "nothing to do"
@@ -301,6 +303,10 @@ def _counts(rf: ResultsFile, rows: int = 65536) -> dict:
         for kind in rf.text("error_kind", start, start + rows):
             out[kind or "ok"] = out.get(kind or "ok", 0) + 1
     return out
+
+
+def _warned(rf: ResultsFile, rows: int = 65536) -> int:
+    return sum(1 for start in range(0, rf.n_rows, rows) for cell in rf.text("warnings", start, start + rows) if cell)
 
 
 def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary:
@@ -379,7 +385,7 @@ def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary
         if complete:
             rewrite(cfg.output)
         with ResultsFile(cfg.output) as rf:
-            summary.counts = _counts(rf)
+            summary.counts, summary.warned = _counts(rf), _warned(rf)
     summary.complete, summary.interrupted = complete, interrupted
     return summary
 
