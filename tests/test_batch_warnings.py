@@ -158,8 +158,10 @@ def test_export_has_the_warnings_column(v2, tmp_path):
     assert table.column("warnings").to_pylist() == [r["warnings"] for r in rows if r["status"] == "ok"]
 
 
-def test_sharded_run_merges_to_the_unsharded_file(v2, tmp_path):
+def test_two_workers_and_a_sharded_run_give_the_same_file(v2, tmp_path):
     inp, out = v2
+    run(inp, tmp_path / "j2.h5", jobs=2)
+    assert_same_results(out, tmp_path / "j2.h5")
     shards = [tmp_path / f"s{k}.h5" for k in (1, 2)]
     for k, s in enumerate(shards, 1):
         run(inp, s, jobs=1, shard=(k, 2))
