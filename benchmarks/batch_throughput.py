@@ -75,7 +75,7 @@ for start in range(0, n_total, rows):
     c.name = list(c.key)
     c.smiles = ["CN(C)c1ccc(cc1)/N=N/c1ccc(cc1)[N+](=O)[O-]"] * n
     c.canonical_smiles = list(c.smiles)
-    c.error_kind, c.error_message = [""] * n, [""] * n
+    c.error_kind, c.error_message, c.warnings = [""] * n, [""] * n, [""] * n
     c.ints, c.floats, c.n_states = np.ones((n, 3), np.int64), rng.random((n, 10)), np.full(n, k)
     c.states = {{"chromophore": np.zeros(m, np.int16), "multiplicity": np.ones(m, np.int8),
                 "root": np.ones(m, np.int16), "energy_ev": rng.random(m), "wavelength_nm": rng.random(m),

@@ -14,10 +14,12 @@ from ..errors import InputError, StorageError
 from . import schema as S
 from .reader import ResultsFile
 
-#: exported columns, in order (text columns are decoded; "status" becomes ok/failed)
+#: exported columns, in order (text columns are decoded; "status" becomes ok/failed; "warnings" is last,
+#: so that the columns before it keep their positions of format version 1; a molecule's warnings are
+#: joined by schema.WARNING_SEPARATOR, " | ")
 COLUMNS = ("key", "name", "input_index", "source", "status", "error_kind", "error_message", "smiles",
            "canonical_smiles", "n_chromophores", "n_centres", "n_electrons", "homo_ev", "lumo_ev",
-           "s1_ev", "s1_nm", "s1_f", "t1_ev", "t1_nm", "bright_ev", "bright_nm", "bright_f")
+           "s1_ev", "s1_nm", "s1_f", "t1_ev", "t1_nm", "bright_ev", "bright_nm", "bright_f", "warnings")
 STATUS_FILTERS = ("all", "ok", "failed")
 _TEXT = set(S.MOLECULE_TEXT)
 

@@ -11,6 +11,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import StorageError
+from . import schema as S
 from .reader import ResultsFile
 from .runner import IDENTITY_ATTRS
 from .store import ResultsWriter
@@ -21,7 +22,7 @@ def concat(chunks: list[ChunkResult]) -> ChunkResult:
     """One ChunkResult holding the rows of several, in order."""
     cat = np.concatenate
     out = ChunkResult(index=cat([c.index for c in chunks]), source=cat([c.source for c in chunks]))
-    for name in ("key", "name", "smiles", "canonical_smiles", "error_kind", "error_message"):
+    for name in S.MOLECULE_TEXT:
         setattr(out, name, [v for c in chunks for v in getattr(c, name)])
     out.ints = cat([c.ints for c in chunks])
     out.floats = cat([c.floats for c in chunks])
@@ -37,7 +38,7 @@ def take(chunk: ChunkResult, rows: np.ndarray) -> ChunkResult:
     sel = np.concatenate([np.arange(starts[r], starts[r] + chunk.n_states[r]) for r in rows]
                          + [np.zeros(0, np.int64)]).astype(np.int64)
     out = ChunkResult(index=chunk.index[rows], source=chunk.source[rows])
-    for name in ("key", "name", "smiles", "canonical_smiles", "error_kind", "error_message"):
+    for name in S.MOLECULE_TEXT:
         vals = getattr(chunk, name)
         setattr(out, name, [vals[r] for r in rows])
     out.ints, out.floats, out.n_states = chunk.ints[rows], chunk.floats[rows], chunk.n_states[rows]
@@ -63,6 +64,12 @@ def merge(files: list[str | Path], out: str | Path, overwrite: bool = False, win
             if diff:
                 raise StorageError(f"'{rf.path}' and '{srcs[0].path}' come from different runs "
                                    f"(differ in: {', '.join(diff)})")
+        versions = sorted({rf.version for rf in srcs})
+        if len(versions) > 1:
+            old = next(rf for rf in srcs if rf.version == versions[0])
+            raise StorageError(f"'{old.path}' has results format version {old.version}, older than the other "
+                               f"files' (written by an older ppp, without per-molecule warnings): recompute that "
+                               f"shard with this ppp (add --overwrite) and merge again")
         total = int(first["input_records"])
         indices = [rf.column("input_index") for rf in srcs]
         present = np.unique(np.concatenate(indices)) if indices else np.zeros(0, np.int64)
@@ -73,7 +80,7 @@ def merge(files: list[str | Path], out: str | Path, overwrite: bool = False, win
                      merged_from=", ".join(str(rf.path) for rf in srcs))
         text = srcs[0].h5["parameter_file"][()].tobytes().decode()
         tmp = out.with_name(f".{out.name}.merge.tmp")
-        writer = ResultsWriter.create(tmp, attrs, text)
+        writer = ResultsWriter.create(tmp, attrs, text, version=versions[0])
         kept = 0
         try:
             for lo in range(0, total, window):

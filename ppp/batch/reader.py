@@ -37,6 +37,7 @@ class ResultsFile:
     attrs : dict of the file's attributes
     interrupted : True when the writer did not close the file (killed, crashed, or still running)
     committed : dataset path -> committed length, plus "__blocks__"
+    version : format version of the file (1: no ``warnings`` column; it reads as "" on every row)
     """
 
     def __init__(self, path: str | Path, salvaging: bool = False):
@@ -66,11 +67,16 @@ class ResultsFile:
                     self.attrs.update({k: _plain(v) for k, v in self.h5["run"].attrs.items()})
             if self.attrs.get("format") != S.FORMAT:
                 raise StorageError(f"'{self.path}' is not a ppp batch results file")
-            if int(self.attrs.get("format_version", 0)) > S.FORMAT_VERSION:
-                raise StorageError(f"'{self.path}' has format version {self.attrs['format_version']}; "
-                                   f"this ppp reads up to {S.FORMAT_VERSION}")
+            self.version = int(self.attrs.get("format_version", 1))
+            if self.version > S.FORMAT_VERSION:
+                raise StorageError(f"'{self.path}' has format version {self.version}; "
+                                   f"this ppp reads up to {S.FORMAT_VERSION}: update ppp to read it")
+            if self.version not in S.READABLE_VERSIONS:
+                raise StorageError(f"'{self.path}' has format version {self.version}, which this ppp "
+                                   f"does not read")
             self.heavy = bool(self.attrs["heavy"])
-            self.paths = S.dataset_paths(self.heavy)
+            self.text_columns = S.molecule_text(self.version)
+            self.paths = S.dataset_paths(self.heavy, self.version)
             try:
                 self.committed = self._committed()
             except _READ_ERRORS:
@@ -142,10 +148,14 @@ class ResultsFile:
             raise _damaged(self.path, f"molecules/{name}: {_first_line(str(exc))}") from None
 
     def text(self, name: str, start: int = 0, stop: int | None = None) -> list[str]:
-        """Committed rows of a text column of the molecules table."""
+        """Committed rows of a text column of the molecules table.
+
+        A column that the file's format version lacks (``warnings`` in version 1) reads as ""."""
         stop = self.n_rows if stop is None else min(stop, self.n_rows)
         if stop <= start:
             return []
+        if name in S.MOLECULE_TEXT and name not in self.text_columns:
+            return [""] * (stop - start)
         try:
             ends = self.h5[f"molecules/{name}/end"][max(start - 1, 0):stop]
             first = int(ends[0]) if start > 0 else 0
@@ -155,6 +165,11 @@ class ResultsFile:
             return [blob[s:e].decode("utf-8") for s, e in zip(starts.tolist(), (ends - first).tolist())]
         except _READ_ERRORS as exc:
             raise _damaged(self.path, f"molecules/{name}: {_first_line(str(exc))}") from None
+
+    def warnings(self, start: int = 0, stop: int | None = None) -> list[tuple[str, ...]]:
+        """Committed rows' warnings (``MoleculeResult.warnings`` of each molecule, in that order; empty
+        for a molecule without warnings, a failed one, and every row of a format-version-1 file)."""
+        return [S.split_warnings(cell) for cell in self.text("warnings", start, stop)]
 
     def states(self, name: str, start: int = 0, stop: int | None = None) -> np.ndarray:
         """Committed rows of a column of the states table."""
@@ -373,7 +388,7 @@ def _salvage(path: Path, out: Path, heartbeat) -> tuple[int, int]:
             except _READ_ERRORS:
                 text = ""
             tmp = out.with_name(f".{out.name}.salvage.tmp")
-            writer = ResultsWriter.create(tmp, attrs, text)
+            writer = ResultsWriter.create(tmp, attrs, text, version=src.version)  # the rows keep their format
             recovered = 0
             try:
                 start = 0
@@ -410,7 +425,7 @@ def rewrite(path: str | Path, rows: int = 8192) -> None:
         attrs = dict(src.attrs)
         text = src.h5["parameter_file"][()].tobytes().decode()
         writer = ResultsWriter.create(tmp, {k: v for k, v in attrs.items() if k not in ("format", "format_version")},
-                                      text)
+                                      text, version=src.version)
         try:
             for chunk in src.iter_chunks(rows=rows):
                 writer.add(chunk)

@@ -24,6 +24,7 @@ from ..driver import Options
 from ..errors import InputError, PPPError, StorageError
 from ..model import params as param_registry
 from . import inputs
+from . import schema as S
 from .progress import Progress
 from .reader import ResultsFile, rewrite
 from .store import ResultsWriter, now_utc
@@ -64,6 +65,7 @@ class BatchSummary:
     resumed_from: int
     written: int
     counts: dict = field(default_factory=dict)  # whole file: "ok" and each error kind
+    warned: int = 0  # whole file: ok molecules whose result carries warnings
     wall_seconds: float = 0.0
     complete: bool = False
     interrupted: bool = False
@@ -79,7 +81,8 @@ class BatchSummary:
         out = [f"{self.path}: {total} of {self.expected} molecules ({state})",
                f"  computed in this run  {self.written}" + (f" (resumed after {self.resumed_from})"
                                                             if self.resumed_from else ""),
-               f"  ok                    {ok}",
+               f"  ok                    {ok}" + (f" ({self.warned} with warnings: see the 'warnings' column)"
+                                                        if self.warned else ""),
                f"  failed                {total - ok}" + (": " + ", ".join(f"{k} {v}" for k, v in failed.items())
                                                           if failed else ""),
                f"  wall time             {self.wall_seconds:.1f} s, {rate:.1f} molecules/s ({self.workers})"]
@@ -156,6 +159,13 @@ def _open_output(cfg: BatchConfig, ident: dict, attrs: dict, pset) -> tuple[Resu
                                    f"choose another output file or add --overwrite")
             if rf.complete:
                 return None, rf.n_rows
+            if rf.version != S.FORMAT_VERSION:
+                # rows computed now would lose their warnings in the older layout, and copying the old
+                # rows into the new one would show them as "no warnings" when none were recorded
+                raise StorageError(f"'{out}' was started by an older ppp (results format version {rf.version}, "
+                                   f"without per-molecule warnings) and is not complete; this ppp does not add "
+                                   f"rows to it: finish it with the ppp that started it, or add --overwrite to "
+                                   f"start again")
             done, interrupted, committed = rf.n_rows, rf.interrupted, rf.committed
         if interrupted:
             # killed writer: copy its committed rows into a fresh file, swapped in atomically
@@ -271,7 +281,7 @@ def run_batch(cfg: BatchConfig, stream=None) -> BatchSummary:
         summary = BatchSummary(cfg.output, expected, done, 0)
         if writer is None:
             with ResultsFile(cfg.output) as rf:
-                summary.counts = _counts(rf)
+                summary.counts, summary.warned = _counts(rf), _warned(rf)
             summary.complete = True
             summary.wall_seconds = time.perf_counter() - t0
             summary.workers = "nothing to do"
@@ -293,6 +303,10 @@ def _counts(rf: ResultsFile, rows: int = 65536) -> dict:
         for kind in rf.text("error_kind", start, start + rows):
             out[kind or "ok"] = out.get(kind or "ok", 0) + 1
     return out
+
+
+def _warned(rf: ResultsFile, rows: int = 65536) -> int:
+    return sum(1 for start in range(0, rf.n_rows, rows) for cell in rf.text("warnings", start, start + rows) if cell)
 
 
 def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary:
@@ -371,7 +385,7 @@ def _run(cfg, writer, done, expected, summary, pset, stream, t0) -> BatchSummary
         if complete:
             rewrite(cfg.output)
         with ResultsFile(cfg.output) as rf:
-            summary.counts = _counts(rf)
+            summary.counts, summary.warned = _counts(rf), _warned(rf)
     summary.complete, summary.interrupted = complete, interrupted
     return summary
 

@@ -9,7 +9,9 @@ from __future__ import annotations
 import numpy as np
 
 FORMAT = "ppp-batch"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+#: format versions this ppp reads; version 1 lacks the molecules' ``warnings`` column (it reads as "")
+READABLE_VERSIONS = (1, 2)
 
 #: status codes of the molecules table
 OK, FAILED = 0, 1
@@ -29,7 +31,14 @@ MOLECULE_NUMERIC = (
 SUMMARY_FLOATS = ("homo_ev", "lumo_ev", "s1_ev", "s1_nm", "s1_f", "t1_ev", "t1_nm",
                   "bright_ev", "bright_nm", "bright_f")
 #: molecules table: text columns
-MOLECULE_TEXT = ("key", "name", "smiles", "canonical_smiles", "error_kind", "error_message")
+MOLECULE_TEXT = ("key", "name", "smiles", "canonical_smiles", "error_kind", "error_message", "warnings")
+#: text columns added after format version 1: name -> first version that has it
+TEXT_SINCE = {"warnings": 2}
+#: joins a molecule's warnings (``MoleculeResult.warnings``, in that order) in the ``warnings`` column.
+#: Not "; ": a warning may itself contain one (the RPA fall-back does). The cell stays one line (a CSV
+#: row stays one line): :func:`join_warnings` turns a line break inside a warning into a space and the
+#: separator inside a warning (none of ppp's has one) into " / ", so :func:`split_warnings` is exact.
+WARNING_SEPARATOR = " | "
 
 #: states table (concatenated over molecules; a molecule's rows are state_start : state_start+state_count)
 STATE_COLUMNS = (
@@ -64,10 +73,27 @@ HEAVY_ARRAYS = {
 VOLATILE_ATTRS = ("created", "finished", "history", "status")
 
 
-def dataset_paths(heavy: bool) -> list[str]:
-    """Every growing dataset of a file, in the fixed order of the commit log's size columns."""
+def molecule_text(version: int = FORMAT_VERSION) -> tuple[str, ...]:
+    """Text columns of the molecules table stored in a file of format ``version``."""
+    return tuple(n for n in MOLECULE_TEXT if TEXT_SINCE.get(n, 1) <= version)
+
+
+def join_warnings(warnings) -> str:
+    """The ``warnings`` cell of one molecule: "" when none, else joined with WARNING_SEPARATOR."""
+    return WARNING_SEPARATOR.join(" ".join(str(w).splitlines()).replace(WARNING_SEPARATOR, " / ")
+                                  for w in warnings)
+
+
+def split_warnings(cell: str) -> tuple[str, ...]:
+    """Inverse of :func:`join_warnings`."""
+    return tuple(cell.split(WARNING_SEPARATOR)) if cell else ()
+
+
+def dataset_paths(heavy: bool, version: int = FORMAT_VERSION) -> list[str]:
+    """Every growing dataset of a file of format ``version``, in the fixed order of the commit log's
+    size columns."""
     paths = [f"molecules/{n}" for n, _ in MOLECULE_NUMERIC]
-    for n in MOLECULE_TEXT:
+    for n in molecule_text(version):
         paths += [f"molecules/{n}/bytes", f"molecules/{n}/end"]
     paths += [f"states/{n}" for n, _, _ in STATE_COLUMNS]
     if heavy:

@@ -83,14 +83,14 @@ class KeyIndex:
         self.recent = {}
 
 
-def _create_datasets(h5: h5py.File, heavy: bool) -> None:
+def _create_datasets(h5: h5py.File, heavy: bool, version: int) -> None:
     def make(path: str, dtype, shape: tuple, chunk_rows: int):
         h5.create_dataset(path, shape=(0,) + shape, maxshape=(None,) + shape, dtype=dtype,
                           chunks=(chunk_rows,) + shape, **_COMPRESSION)
 
     for name, dt in S.MOLECULE_NUMERIC:
         make(f"molecules/{name}", dt, (), _CHUNK_ROWS["molecules"])
-    for name in S.MOLECULE_TEXT:
+    for name in S.molecule_text(version):
         make(f"molecules/{name}/bytes", np.uint8, (), _CHUNK_ROWS["bytes"])
         make(f"molecules/{name}/end", np.int64, (), _CHUNK_ROWS["molecules"])
     for name, dt, shape in S.STATE_COLUMNS:
@@ -100,10 +100,11 @@ def _create_datasets(h5: h5py.File, heavy: bool) -> None:
             make(f"heavy/chromophores/{name}", dt, (), _CHUNK_ROWS["molecules"])
         for name, (dt, shape, _) in S.HEAVY_ARRAYS.items():
             make(f"heavy/{name}", dt, shape, _CHUNK_ROWS["heavy"])
-    n = len(S.dataset_paths(heavy))
+    paths = S.dataset_paths(heavy, version)
+    n = len(paths)
     log = h5.create_dataset("commits", shape=(0, n + 2), maxshape=(None, n + 2), dtype=np.int64,
                             chunks=(64, n + 2), fletcher32=True)
-    log.attrs["columns"] = json.dumps(["block"] + S.dataset_paths(heavy) + ["check"])
+    log.attrs["columns"] = json.dumps(["block"] + paths + ["check"])
 
 
 def _new_file(path: Path) -> h5py.File:
@@ -130,8 +131,10 @@ class ResultsWriter:
     def __init__(self, h5: h5py.File, path: Path):
         self.h5, self.path = h5, path
         self.heavy = bool(h5.attrs["heavy"])
+        self.version = int(h5.attrs.get("format_version", 1))
+        self.text_columns = S.molecule_text(self.version)
         self.unit = "record" if h5.attrs.get("input_format") == "sdf" else "line"
-        self.paths = S.dataset_paths(self.heavy)
+        self.paths = S.dataset_paths(self.heavy, self.version)
         self.ds = {p: h5[p] for p in self.paths}
         self.log = h5["commits"]
         self.sizes = {p: self.ds[p].shape[0] for p in self.paths}
@@ -144,16 +147,24 @@ class ResultsWriter:
 
     # -- opening -------------------------------------------------------------------------------
     @classmethod
-    def create(cls, path: str | Path, attrs: dict, parameter_text: str) -> "ResultsWriter":
-        """New file at ``path`` (replaced if present: the caller checks permission)."""
+    def create(cls, path: str | Path, attrs: dict, parameter_text: str,
+               version: int = S.FORMAT_VERSION) -> "ResultsWriter":
+        """New file at ``path`` (replaced if present: the caller checks permission).
+
+        ``version``: format version of the new file; an older one only to copy rows of a file of that
+        version (salvage, merge, compaction), so that its rows never claim a column they lacked.
+        """
         path = Path(path)
+        if version not in S.READABLE_VERSIONS:
+            raise StorageError(f"cannot write results format version {version} (this ppp writes "
+                               f"{', '.join(map(str, S.READABLE_VERSIONS))})")
         try:
             h5 = _new_file(path)
             # root attributes are written once, here, and never changed (the root object header then
             # stays at the start of the file, where a truncated file still has it); what changes from
             # run to run lives on the group /run
             static = {k: v for k, v in attrs.items() if k not in S.VOLATILE_ATTRS}
-            h5.attrs.update({"format": S.FORMAT, "format_version": S.FORMAT_VERSION})
+            h5.attrs.update({"format": S.FORMAT, "format_version": version})
             h5.attrs.update(static)
             run = h5.create_group("run")
             run.attrs.update({"status": "running", "created": now_utc(), "finished": "", "history": "[]"})
@@ -163,7 +174,7 @@ class ResultsWriter:
             prov = {k: (v.item() if isinstance(v, np.generic) else v) for k, v in h5.attrs.items()}
             prov["created"] = str(run.attrs["created"])
             h5.create_dataset("provenance", data=np.frombuffer(json.dumps(prov).encode(), np.uint8))
-            _create_datasets(h5, bool(attrs["heavy"]))
+            _create_datasets(h5, bool(attrs["heavy"]), version)
             h5.flush()
             h5.swmr_mode = True
         except OSError as exc:
@@ -172,10 +183,18 @@ class ResultsWriter:
 
     @classmethod
     def append_to(cls, path: str | Path, committed: dict[str, int]) -> "ResultsWriter":
-        """Reopen a cleanly closed file for appending, cutting every dataset to its committed size."""
+        """Reopen a cleanly closed file for appending, cutting every dataset to its committed size.
+
+        Only a file of the current format version: rows computed now must not lose a column (the batch
+        runner refuses an older file with a message saying what to do before it gets here)."""
         path = Path(path)
         try:
             h5 = h5py.File(path, "r+", libver=LIBVER, rdcc_nbytes=0)
+            version = int(h5.attrs.get("format_version", 1))
+            if version != S.FORMAT_VERSION:
+                h5.close()
+                raise StorageError(f"'{path}' has results format version {version}; this ppp appends only to "
+                                   f"version {S.FORMAT_VERSION}")
             h5["run"].attrs["status"] = "running"
             for p in S.dataset_paths(bool(h5.attrs["heavy"])):
                 h5[p].resize(committed[p], axis=0)
@@ -242,7 +261,11 @@ class ResultsWriter:
         index = cat([c.index for c in chunks])
         source = cat([c.source for c in chunks])
         n = len(index)
-        text = {name: [v for c in chunks for v in getattr(c, name)] for name in S.MOLECULE_TEXT}
+        text = {name: [v for c in chunks for v in getattr(c, name)] for name in self.text_columns}
+        bad = [name for name in self.text_columns if len(text[name]) != n]
+        if bad:  # a programming error (a ChunkResult built by hand without every column): nothing written
+            raise StorageError(f"cannot write to '{self.path}': text column(s) {', '.join(bad)} do not have "
+                               f"one entry per molecule")
         ints = cat([c.ints for c in chunks])
         floats = cat([c.floats for c in chunks])
         n_states = cat([c.n_states for c in chunks])
@@ -266,6 +289,8 @@ class ResultsWriter:
             text["error_kind"][i] = "duplicate"
             text["error_message"][i] = (f"{self.unit} {int(source[i])}: key '{text['key'][i]}' already used by "
                                         f"{self.unit} {first}")
+            if "warnings" in text:
+                text["warnings"][i] = ""  # a failed row has no result, so no warnings
         status = np.where([k == "" for k in text["error_kind"]], S.OK, S.FAILED).astype(np.int8)
         if not keep.all():
             state_keep = np.repeat(keep, n_states)
@@ -288,7 +313,7 @@ class ResultsWriter:
         cols.update({name: floats[:, j] for j, name in enumerate(S.SUMMARY_FLOATS)})
         for name, dt in S.MOLECULE_NUMERIC:
             self._append(f"molecules/{name}", np.asarray(cols[name], dt))
-        for name in S.MOLECULE_TEXT:
+        for name in self.text_columns:
             self._append_text(name, text[name])
         for name, dt, _ in S.STATE_COLUMNS:
             self._append(f"states/{name}", np.asarray(states[name], dt))

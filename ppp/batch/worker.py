@@ -29,7 +29,7 @@ from ..driver import Options, compute
 from ..errors import ParseError, PPPError
 from ..model import params as param_registry
 from ..structure.readers import _sanitize, mol_from_smiles
-from .schema import SUMMARY_FLOATS
+from .schema import SUMMARY_FLOATS, join_warnings
 
 #: Rows of the per-state arrays, in the order the store keeps them.
 STATE_FIELDS = ("chromophore", "multiplicity", "root", "energy_ev", "wavelength_nm", "oscillator_strength",
@@ -144,6 +144,7 @@ class ChunkResult:
     canonical_smiles: list = field(default_factory=list)
     error_kind: list = field(default_factory=list)     # "" when ok
     error_message: list = field(default_factory=list)
+    warnings: list = field(default_factory=list)       # schema.join_warnings of each result; "" when failed
     ints: np.ndarray = None      # (n, 3) int64: n_chromophores, n_centres, n_electrons
     floats: np.ndarray = None    # (n, 10) float64: schema.SUMMARY_FLOATS (NaN when absent)
     n_states: np.ndarray = None  # (n,) int64
@@ -267,6 +268,7 @@ def compute_chunk(items, options: Options, parameters_sha256: str, heavy: bool =
         res.canonical_smiles.append(canonical)
         res.error_kind.append(err_kind if result is None else "")
         res.error_message.append(err_msg if result is None else "")
+        res.warnings.append("" if result is None else join_warnings(result.warnings))
         if result is not None:
             chroms = result.chromophores
             res.ints[k] = (len(chroms), sum(c.model.n_centres for c in chroms),
