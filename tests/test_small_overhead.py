@@ -86,10 +86,11 @@ def test_solve_with_shared_exchange_equals_separate_builds(monkeypatch, smiles):
 
 def test_diis_bordered_system_of_every_size_equals_a_fresh_one():
     """The one array behind the bordered systems [[B, -1], [-1, 0]] of all sizes (Pulay 1980) holds the
-    right border and right-hand side after growing, and after shrinking (which the SCF never does)."""
+    right border and right-hand side after growing, and after shrinking (which the SCF never does), also
+    when it grows by one again after a shrink (row and column then hold an earlier B, not the fill)."""
     rng = np.random.default_rng(3)
-    diis = scf._DIIS(6, 5)
-    for n in (2, 3, 6, 4, 2, 5):
+    diis = scf._DIIS(7, 5)
+    for n in (2, 3, 6, 4, 5, 2, 3, 7, 5, 6):
         diis._resize(n)
         diis._a[:n, :n] = rng.standard_normal((n, n))  # what extrapolate writes there
         a = diis._a[:n + 1, :n + 1]

@@ -127,6 +127,7 @@ class _DIIS:
         self._a.fill(-1.0)  # (np.full costs five times as much)
         self._rhs = np.zeros(space + 1)
         self._size = 0  # subspace size of the last extrapolation
+        self._largest = 0  # largest size set up so far
         self._f = self._e = None
         self._pending = 0
         self.last_norm = np.inf  # B_ss of the pair stored last
@@ -199,21 +200,31 @@ class _DIIS:
             a_b[...] = self._bm[n]
         _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a and rhs)
         if info != 0 or not coef.dot(coef) <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
-            try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
-                coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
-            except np.linalg.LinAlgError:
-                coef = None
-            if coef is None or not np.isfinite(coef).all():
-                return self._fv[self.slots[-1]]
+            return self._fallback(a, rhs)
         return coef[:n].dot(self._fm[n]).reshape(self._shape)
+
+    def _fallback(self, a: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+        """The extrapolation when the LU solve of the bordered system fails or gives huge coefficients:
+        least squares (B becomes near-singular as the error vectors shrink at convergence), or the
+        newest Fock matrix when that fails as well."""
+        try:
+            coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
+        except np.linalg.LinAlgError:
+            coef = None
+        if coef is None or not np.isfinite(coef).all():
+            return self._fv[self.slots[-1]]
+        return coef[:len(self.slots)].dot(self._fm[len(self.slots)]).reshape(self._shape)
 
     def _resize(self, n: int) -> None:
         """Set the border of the size-n bordered system: row and column n -1, corner 0, rhs e_n (-1)."""
         old = self._size
         self._rhs[old] = 0.0
         self._rhs[n] = -1.0
-        self._a[n, :n] = -1.0  # (untouched -1 when the size grows; rewritten should it ever shrink)
-        self._a[:n, n] = -1.0
+        if n <= self._largest:  # above every size used so far (the SCF's case: it only grows), row and
+            self._a[n, :n] = -1.0  # column n still hold the -1 of the fill, and only the corner is set
+            self._a[:n, n] = -1.0
+        else:
+            self._largest = n
         self._a[n, n] = 0.0
         self._size = n
         # the size-n system, its right-hand side and its B block, as views kept until the size changes
@@ -254,9 +265,20 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
                             bond_beta=form, core_tol=core_tol)
     d = 0.5 * np.asarray(dens0, dtype=float)
     gamma2 = gamma + gamma
-    ring = _DIIS(diis_space if use_diis else 1, n)
+    space = diis_space if use_diis else 1
+    ring = _DIIS(space, n)
+    # the ring's target / commit / extrapolate, inlined below on its buffers (the same operations in the
+    # same order; a method call and its attribute look-ups cost about as much as a small numpy call)
+    slots, fv, ev, dv, em, fm, bm = ring.slots, ring._fv, ring._ev, ring._dv, ring._em, ring._fm, ring._bm
+    e_buf, b_buf, norms = ring._e, ring._b, ring._norm
+    extrapolated = np.empty((n, n))  # the extrapolated Fock matrix (dsyevd reads it, no copy kept)
+    extrapolated_flat = extrapolated.reshape(-1)
     fd = np.empty((n, n))
     fd_t = fd.T
+    # the new half densities C_occ C_occ^T go into two buffers in turn: the one written is never the
+    # density in use, nor the one of the iteration before (kept for the lazy energy below)
+    dbuf = (np.empty((n, n)), np.empty((n, n)))
+    which = 0
     eye = np.eye(n) if level_shift else None
     old_core = None
     # With DIIS, |FD - DF|^2 comes with the new row of B; max |x| >= |x|_F / N, so while |FD - DF|_F
@@ -267,19 +289,31 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     gate = (0.5 * n * conv_tol_grad) ** 2 * (1.0 + 1e-6)
     e_old = np.inf  # energy of the iteration before; None when not computed
     prev = None
+    last_norm = np.inf
+    size = 0  # subspace size of the last extrapolation (the ring's bordered system)
     for it in range(1, max_iter + 1):
         if core_update is not None:
             old_core = core
             core = core_update(d + d)
-        fock, err, fdiag = ring.target()
+        slot = slots[0] if len(slots) == space else len(slots)  # ring.target(): the oldest slot when full
+        fock = fv[slot]
+        err = ev[slot]
+        fdiag = dv[slot]
         np.multiply(d, gamma, out=fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
         np.subtract(core, fock, out=fock)
         fdiag += gamma2.dot(d.diagonal())  # the diagonal, as a strided view
         fock.dot(d, out=fd)
         np.subtract(fd, fd_t, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
-        if use_diis:
-            ring.commit()
-        if not lazy or ring.last_norm < gate:
+        if use_diis:  # ring.commit(): B gains the row of the new error
+            if len(slots) == space:
+                slots.pop(0)  # overwrite the oldest
+            slots.append(slot)
+            m = len(slots)  # slots 0..m-1 are in use
+            row = em[m].dot(e_buf[slot])
+            b_buf[slot, :m] = row
+            b_buf[:m, slot] = row
+            last_norm = norms[slot] = float(row[slot])
+        if not lazy or last_norm < gate:
             e = float(np.vdot(d, core)) + float(np.vdot(d, fock))
             if e_old is None:
                 pd, pc, pf = prev
@@ -294,15 +328,31 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
         e_old = e
         prev = (d, core, fock)
         f_use = fock
-        if use_diis and len(ring.slots) >= 2:
-            f_use = ring.extrapolate()
+        if use_diis and m >= 2:  # ring.extrapolate()
+            if m != size:
+                ring._resize(m)
+                size = m
+                a, rhs, a_b = ring._views
+            scale = max(norms[:m])  # B is a Gram matrix: its largest entry lies on its diagonal
+            if scale > 0:
+                np.divide(bm[m], scale, out=a_b)
+            else:
+                a_b[...] = bm[m]
+            _, _, coef, info = _lapack.dgesv(a, rhs)
+            if info != 0 or not coef.dot(coef) <= 1e16:
+                f_use = ring._fallback(a, rhs)  # least squares, or the newest Fock matrix
+            else:
+                coef[:m].dot(fm[m], out=extrapolated_flat)
+                f_use = extrapolated
         if level_shift:
             f_use = f_use + level_shift * (eye - d)  # shift of the virtual space, I - P/2 (Saunders & Hillier 1973)
         _, c, info = _lapack.dsyevd(f_use)  # eigh() inlined: a function call less per iteration
         if info != 0:
             c = np.linalg.eigh(f_use)[1]
         c = c[:, :n_occ]
-        new = c.dot(c.T)
+        new = dbuf[which]
+        which ^= 1
+        c.dot(c.T, out=new)
         d = (1.0 - damping) * new + damping * d if damping else new
     return False, max_iter, d + d
 
@@ -345,13 +395,19 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
     if dens0 is None:
         _, c0 = eigh(core)
         dens0 = density(c0, n_occ)
-    kw = dict(conv_tol=conv_tol, conv_tol_grad=conv_tol_grad)
     starts = [("diis", dens0)]
     if alt_dens0 is not None:
         alt = ("diis-kekule-start", np.asarray(alt_dens0, dtype=float))
         starts = [alt, starts[0]] if alt_first else [starts[0], alt]
-    dens0 = starts[0][1]
-    attempts = [(name, [dict(max_iter=max_iter, start=d)]) for name, d in starts]
+    # the first attempt (nearly always the last): DIIS from the first start
+    strategy, dens0 = starts[0]
+    converged, total, dens = iterate(core, gamma, n_occ, dens0, max_iter=max_iter, conv_tol=conv_tol,
+                                     conv_tol_grad=conv_tol_grad)
+    res = finish(core, gamma, n_occ, dens, converged, total, strategy)
+    if res.converged:
+        return res
+    kw = dict(conv_tol=conv_tol, conv_tol_grad=conv_tol_grad)
+    attempts = [(name, [dict(max_iter=max_iter, start=d)]) for name, d in starts[1:]]
     if fallback:
         attempts += [
             ("level-shift", [dict(max_iter=max_iter, use_diis=False, level_shift=1.0, damping=0.3),
@@ -359,10 +415,6 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
             ("strong-level-shift", [dict(max_iter=4 * max_iter, use_diis=False, level_shift=4.0, damping=0.5),
                                     dict(max_iter=max_iter)]),
         ]
-    total = 0
-    dens = dens0
-    strategy = "diis"
-    converged = False
     for strategy, steps in attempts:
         dens = dens0
         converged = False
