@@ -184,3 +184,61 @@ def test_compute_runs_every_trimmed_path_on_a_dye_with_default_settings():
     expect = m0.core[i, j] * vb.beta_factor(vb.bond_length(c.scf.dens[i, j], settings), settings)
     np.testing.assert_allclose(c.model.core[i, j], expect, rtol=0, atol=2e-6)
     assert len(c.singlets) == 10 and len(c.triplets) == 10
+
+
+def _random_model(n, n_occ, seed):
+    rng = np.random.default_rng(seed)
+    a = rng.standard_normal((n, n))
+    g = rng.random((n, n))
+    core, gamma = -np.abs(a + a.T), g + g.T + 6.0 * np.eye(n)
+    return core, gamma, n_occ, scf.density(scf.eigh(core)[1], n_occ)
+
+
+def test_reused_scf_ring_gives_the_numbers_of_a_new_one(monkeypatch):
+    """iterate() reuses the DIIS ring of the run before (same size, same thread); the runs must equal
+    those with a new ring every time, bit for bit, also after a run stopped by max_iter, one with
+    another subspace size, and one with level shift and damping."""
+    monkeypatch.setattr(scf, "JIT_MIN_CENTRES", 10**9)  # the numpy loop even if numba is loaded
+    cases = [(_random_model(13, 6, s), kw) for s in (11, 12) for kw in
+             (dict(max_iter=50), dict(max_iter=3), dict(max_iter=50, diis_space=3),
+              dict(max_iter=20, use_diis=False, level_shift=1.0, damping=0.3))]
+    reused = [scf.iterate(*args, **kw) for args, kw in cases + cases]
+    monkeypatch.setattr(scf, "RING_POOL_MAX_CENTRES", 0)  # nothing kept: a new ring for every run
+    fresh = [scf.iterate(*args, **kw) for args, kw in cases + cases]
+    for got, ref in zip(reused, fresh):
+        assert got[:2] == ref[:2]
+        np.testing.assert_array_equal(got[2], ref[2])
+    assert any(r[0] for r in fresh) and not all(r[0] for r in fresh)  # converged and stopped runs
+
+
+def test_scf_rings_are_not_shared_between_threads(monkeypatch):
+    """Two threads iterating at once (numpy releases the GIL inside its calls) each get their own
+    ring: the results equal those of the runs one after the other."""
+    import threading
+    monkeypatch.setattr(scf, "JIT_MIN_CENTRES", 10**9)
+    models = [_random_model(13, 6, s) for s in (21, 22)]
+    alone = [scf.iterate(*m, max_iter=60) for m in models]
+    out = [None, None]
+
+    def work(k):
+        out[k] = [scf.iterate(*models[k], max_iter=60) for _ in range(30)]
+
+    threads = [threading.Thread(target=work, args=(k,)) for k in (0, 1)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    for k in (0, 1):
+        for got in out[k]:
+            assert got[:2] == alone[k][:2]
+            np.testing.assert_array_equal(got[2], alone[k][2])
+
+
+def test_scf_ring_pool_stays_small():
+    for n in range(5, 5 + 2 * scf.RING_POOL_SIZES):
+        core, gamma, n_occ, p0 = _random_model(n, n // 2, n)
+        scf.iterate(core, gamma, n_occ, p0, max_iter=5)
+    assert len(scf._ring_pool.rings) == scf.RING_POOL_SIZES
+    core, gamma, n_occ, p0 = _random_model(scf.RING_POOL_MAX_CENTRES + 1, 10, 1)
+    scf.iterate(core, gamma, n_occ, p0, max_iter=2)
+    assert all(n <= scf.RING_POOL_MAX_CENTRES for _, n in scf._ring_pool.rings)

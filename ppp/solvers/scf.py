@@ -14,6 +14,7 @@ A run that still fails returns ``converged=False``; callers must not use its orb
 from __future__ import annotations
 
 import sys
+import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -148,6 +149,19 @@ class _DIIS:
         self._fm = [self._f[:m] for m in range(space + 1)]
         self._em = [self._e[:m] for m in range(space + 1)]
         self._bm = [self._b[:m, :m] for m in range(space + 1)]
+        self._work = None  # scratch arrays of :func:`iterate`, made there on first use
+
+    def reset(self) -> None:
+        """Back to the state of a new ring of the same size: no stored pairs, the bordered system of
+        size 0. The buffers keep their old contents, which are never read: every B_ij, norm, Fock
+        matrix and error of the slots in use is written when its pair is stored."""
+        self.slots.clear()
+        self._a.fill(-1.0)
+        self._rhs.fill(0.0)
+        self._size = 0
+        self._largest = 0
+        self._pending = 0
+        self.last_norm = np.inf
 
     @property
     def focks(self) -> list[np.ndarray]:
@@ -231,6 +245,38 @@ class _DIIS:
         self._views = (self._a[:n + 1, :n + 1], self._rhs[:n + 1], self._a[:n, :n])
 
 
+#: :func:`iterate` keeps the DIIS ring and scratch arrays of its last runs for reuse by the next run of
+#: the same size in the same thread, up to this many centres (0.5 MB per size) and this many sizes:
+#: making them costs ~15 us, more than a Fock build and an eigensolve at dye size. Only memory is
+#: reused, never a number (see :meth:`_DIIS.reset`).
+RING_POOL_MAX_CENTRES = 64
+RING_POOL_SIZES = 4
+_ring_pool = threading.local()
+
+
+def _take_ring(space: int, n: int) -> _DIIS:
+    """A DIIS ring for ``space`` slots of N x N in its initial state: this thread's spare one of that
+    size (reset), else a new one."""
+    spare = getattr(_ring_pool, "rings", None)
+    ring = spare.pop((space, n), None) if spare else None
+    if ring is None:
+        return _DIIS(space, n)
+    ring.reset()
+    return ring
+
+
+def _give_back(ring: _DIIS, n: int) -> None:
+    """Keep a ring that :func:`iterate` has finished with for the next run of its size (small N only)."""
+    if n > RING_POOL_MAX_CENTRES:
+        return
+    spare = getattr(_ring_pool, "rings", None)
+    if spare is None:
+        spare = _ring_pool.rings = {}
+    if len(spare) >= RING_POOL_SIZES:
+        del spare[next(iter(spare))]  # the size kept longest
+    spare[(ring.space, n)] = ring
+
+
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
             use_diis: bool = True, diis_space: int = 8, level_shift: float = 0.0, damping: float = 0.0,
             conv_tol: float = CONV_TOL_ENERGY, conv_tol_grad: float = CONV_TOL_GRAD, core_update=None,
@@ -266,18 +312,19 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     d = 0.5 * np.asarray(dens0, dtype=float)
     gamma2 = gamma + gamma
     space = diis_space if use_diis else 1
-    ring = _DIIS(space, n)
+    ring = _take_ring(space, n)
     # the ring's target / commit / extrapolate, inlined below on its buffers (the same operations in the
     # same order; a method call and its attribute look-ups cost about as much as a small numpy call)
     slots, fv, ev, dv, em, fm, bm = ring.slots, ring._fv, ring._ev, ring._dv, ring._em, ring._fm, ring._bm
     e_buf, b_buf, norms = ring._e, ring._b, ring._norm
-    extrapolated = np.empty((n, n))  # the extrapolated Fock matrix (dsyevd reads it, no copy kept)
+    if ring._work is None:
+        # the extrapolated Fock matrix (dsyevd reads it, no copy kept), F D, and two buffers that the
+        # new half densities C_occ C_occ^T go into in turn: the one written is never the density in
+        # use, nor the one of the iteration before (kept for the lazy energy below)
+        ring._work = (np.empty((n, n)), np.empty((n, n)), (np.empty((n, n)), np.empty((n, n))))
+    extrapolated, fd, dbuf = ring._work
     extrapolated_flat = extrapolated.reshape(-1)
-    fd = np.empty((n, n))
     fd_t = fd.T
-    # the new half densities C_occ C_occ^T go into two buffers in turn: the one written is never the
-    # density in use, nor the one of the iteration before (kept for the lazy energy below)
-    dbuf = (np.empty((n, n)), np.empty((n, n)))
     which = 0
     eye = np.eye(n) if level_shift else None
     old_core = None
@@ -322,6 +369,7 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
             # antisymmetric: its largest entry is its largest |entry|
             if (abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and 2.0 * float(err.max()) < conv_tol_grad
                     and _core_change(core, old_core, core_update is not None, it) < core_tol):
+                _give_back(ring, n)
                 return True, it, d + d
         else:
             e = None
@@ -354,7 +402,9 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
         which ^= 1
         c.dot(c.T, out=new)
         d = (1.0 - damping) * new + damping * d if damping else new
-    return False, max_iter, d + d
+    d = d + d
+    _give_back(ring, n)
+    return False, max_iter, d
 
 
 def _core_change(core: np.ndarray, old_core: np.ndarray | None, updated: bool, it: int) -> float:
