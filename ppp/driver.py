@@ -205,7 +205,8 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
 
 
 def shared_exchange(scf, model: Model, options: Options) -> np.ndarray | None:
-    """The exchange integrals (ij|ab) of the SCF orbitals (:func:`ppp.solvers.cis.exchange_integrals`),
+    """The exchange integrals (ij|ab) of the SCF orbitals (:func:`ppp.solvers.cis.exchange_integrals`, as
+    the [i, a, j, b] block of :func:`ppp.solvers.cis.exchange_block` in which both matrices read them),
     made once for the dense CIS singlet and triplet matrices, which both contain them; None when they
     are not both dense CIS matrices (the iterative solver, RPA singlets, or no roots of one kind), and
     above ``cis.DENSE_MAX_CONFIGURATIONS`` configurations: the array is as large as a CIS matrix, and
@@ -216,7 +217,7 @@ def shared_exchange(scf, model: Model, options: Options) -> np.ndarray | None:
             or o * v > cis_solver.DENSE_MAX_CONFIGURATIONS
             or cis_solver.choose_solver(o, v, options.cis_solver) != "dense"):
         return None
-    return cis_solver.exchange_integrals(scf.mo_coeff, model.gamma, o)
+    return cis_solver.exchange_block(cis_solver.exchange_integrals(scf.mo_coeff, model.gamma, o), o, v)
 
 
 def singlet_roots(scf, model, options, timer=None, exchange: np.ndarray | None = None

@@ -39,17 +39,32 @@ def test_shared_exchange_gives_the_separate_cis_matrices_bit_for_bit(smiles):
     model, res = _solved(smiles)
     o = model.n_occ
     ex = cis.exchange_integrals(res.mo_coeff, model.gamma, o)
-    kept = ex.copy()
+    block = cis.exchange_block(ex, o, model.n_centres - o)
+    kept, kept_block = ex.copy(), block.copy()
     for mult in (1, 3):
         alone = cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, mult)
-        shared = cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, mult, exchange=ex)
-        np.testing.assert_array_equal(shared, alone)
-        a = cis.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, mult, dipole_coords=model.coords)
-        b = cis.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, mult, dipole_coords=model.coords,
-                       exchange=ex)
-        np.testing.assert_array_equal(a.energies, b.energies)
-        np.testing.assert_array_equal(a.amplitudes, b.amplitudes)
-    np.testing.assert_array_equal(ex, kept)  # read, never changed: both multiplicities can share it
+        for shared_ex in (ex, block):
+            shared = cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, o, mult, exchange=shared_ex)
+            np.testing.assert_array_equal(shared, alone)
+            a = cis.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, mult, dipole_coords=model.coords)
+            b = cis.kernel(res.mo_energy, res.mo_coeff, model.gamma, o, 10, mult, dipole_coords=model.coords,
+                           exchange=shared_ex)
+            np.testing.assert_array_equal(a.energies, b.energies)
+            np.testing.assert_array_equal(a.amplitudes, b.amplitudes)
+    # read, never changed: both multiplicities can share them
+    np.testing.assert_array_equal(ex, kept)
+    np.testing.assert_array_equal(block, kept_block)
+
+
+@pytest.mark.parametrize("smiles", DYES[:2])
+def test_exchange_block_is_the_exchange_in_cis_order(smiles):
+    """exchange_block()[i, a, j, b] = (ij|ab), written out from its definition (cis module doc)."""
+    model, res = _solved(smiles)
+    o, c = model.n_occ, res.mo_coeff
+    ref = np.einsum("mi,mj,mn,na,nb->iajb", c[:, :o], c[:, :o], model.gamma, c[:, o:], c[:, o:])
+    got = cis.exchange_block(cis.exchange_integrals(c, model.gamma, o), o, model.n_centres - o)
+    assert got.flags.c_contiguous
+    np.testing.assert_allclose(got, ref, rtol=0, atol=1e-12)
 
 
 def test_exchange_of_the_wrong_shape_is_refused():
@@ -57,6 +72,9 @@ def test_exchange_of_the_wrong_shape_is_refused():
     ex = cis.exchange_integrals(res.mo_coeff, model.gamma, model.n_occ - 1)
     with pytest.raises(ValueError, match="do not fit"):
         cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, model.n_occ, 1, exchange=ex)
+    block = cis.exchange_block(ex, model.n_occ - 1, model.n_centres - model.n_occ + 1)
+    with pytest.raises(ValueError, match="do not fit"):
+        cis.cis_matrix(res.mo_energy, res.mo_coeff, model.gamma, model.n_occ, 3, exchange=block)
 
 
 def test_driver_shares_the_exchange_only_for_two_dense_cis_solves():
