@@ -321,11 +321,17 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
         # the extrapolated Fock matrix (dsyevd reads it, no copy kept), F D, and two buffers that the
         # new half densities C_occ C_occ^T go into in turn: the one written is never the density in
         # use, nor the one of the iteration before (kept for the lazy energy below)
-        ring._work = (np.empty((n, n)), np.empty((n, n)), (np.empty((n, n)), np.empty((n, n))))
-    extrapolated, fd, dbuf = ring._work
+        dbuf = (np.empty((n, n)), np.empty((n, n)))
+        ring._work = (np.empty((n, n)), np.empty((n, n)), dbuf, (dbuf[0].diagonal(), dbuf[1].diagonal()),
+                      list(e_buf))
+    extrapolated, fd, dbuf, dbuf_diag, e_rows = ring._work
     extrapolated_flat = extrapolated.reshape(-1)
     fd_t = fd.T
     which = 0
+    d_diag = d.diagonal()
+    # numpy's functions as locals, outputs passed by position: each look-up and keyword costs a
+    # tenth of a microsecond, a few times per iteration
+    mul, sub, div, gesv = np.multiply, np.subtract, np.divide, _lapack.dgesv
     eye = np.eye(n) if level_shift else None
     old_core = None
     # With DIIS, |FD - DF|^2 comes with the new row of B; max |x| >= |x|_F / N, so while |FD - DF|_F
@@ -346,17 +352,17 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
         fock = fv[slot]
         err = ev[slot]
         fdiag = dv[slot]
-        np.multiply(d, gamma, out=fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
-        np.subtract(core, fock, out=fock)
-        fdiag += gamma2.dot(d.diagonal())  # the diagonal, as a strided view
-        fock.dot(d, out=fd)
-        np.subtract(fd, fd_t, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
+        mul(d, gamma, fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
+        sub(core, fock, fock)
+        fdiag += gamma2.dot(d_diag)  # the diagonal, as a strided view
+        fock.dot(d, fd)
+        sub(fd, fd_t, err)  # (FP - PF) / 2: one matrix product for symmetric F and P
         if use_diis:  # ring.commit(): B gains the row of the new error
             if len(slots) == space:
                 slots.pop(0)  # overwrite the oldest
             slots.append(slot)
             m = len(slots)  # slots 0..m-1 are in use
-            row = em[m].dot(e_buf[slot])
+            row = em[m].dot(e_rows[slot])
             b_buf[slot, :m] = row
             b_buf[:m, slot] = row
             last_norm = norms[slot] = float(row[slot])
@@ -383,14 +389,14 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
                 a, rhs, a_b = ring._views
             scale = max(norms[:m])  # B is a Gram matrix: its largest entry lies on its diagonal
             if scale > 0:
-                np.divide(bm[m], scale, out=a_b)
+                div(bm[m], scale, a_b)
             else:
                 a_b[...] = bm[m]
-            _, _, coef, info = _lapack.dgesv(a, rhs)
+            _, _, coef, info = gesv(a, rhs)
             if info != 0 or not coef.dot(coef) <= 1e16:
                 f_use = ring._fallback(a, rhs)  # least squares, or the newest Fock matrix
             else:
-                coef[:m].dot(fm[m], out=extrapolated_flat)
+                coef[:m].dot(fm[m], extrapolated_flat)
                 f_use = extrapolated
         if level_shift:
             f_use = f_use + level_shift * (eye - d)  # shift of the virtual space, I - P/2 (Saunders & Hillier 1973)
@@ -399,9 +405,14 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
             c = np.linalg.eigh(f_use)[1]
         c = c[:, :n_occ]
         new = dbuf[which]
+        c.dot(c.T, new)
+        if damping:
+            d = (1.0 - damping) * new + damping * d
+            d_diag = d.diagonal()
+        else:
+            d = new
+            d_diag = dbuf_diag[which]
         which ^= 1
-        c.dot(c.T, out=new)
-        d = (1.0 - damping) * new + damping * d if damping else new
     d = d + d
     _give_back(ring, n)
     return False, max_iter, d
