@@ -69,11 +69,11 @@ def polarization(tdm: np.ndarray, threshold: float = 1e-6) -> tuple[float | None
 def polarizations(tdm: np.ndarray, threshold: float = 1e-6) -> list[tuple[float | None, str]]:
     """:func:`polarization` of each row of ``tdm`` (k, 3), e*A, evaluated for all rows at once."""
     tdm = np.asarray(tdm, dtype=float).reshape(-1, 3)
+    x, y, z = tdm.T  # the three columns as views
     norm = np.sqrt((tdm * tdm).sum(axis=1))
-    in_plane = np.hypot(tdm[:, 0], tdm[:, 1])
-    angle = np.degrees(np.arctan2(tdm[:, 1], tdm[:, 0])) % 180.0
+    angle = np.degrees(np.arctan2(y, x)) % 180.0
     out = []
-    for nrm, z, ip, ang in zip(norm.tolist(), np.abs(tdm[:, 2]).tolist(), in_plane.tolist(), angle.tolist()):
+    for nrm, z, ip, ang in zip(norm.tolist(), np.abs(z).tolist(), np.hypot(x, y).tolist(), angle.tolist()):
         if nrm < threshold:
             out.append((None, "-"))
         elif z > ip:
