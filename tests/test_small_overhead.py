@@ -260,3 +260,27 @@ def test_scf_ring_pool_stays_small():
     core, gamma, n_occ, p0 = _random_model(scf.RING_POOL_MAX_CENTRES + 1, 10, 1)
     scf.iterate(core, gamma, n_occ, p0, max_iter=2)
     assert all(n <= scf.RING_POOL_MAX_CENTRES for _, n in scf._ring_pool.rings)
+
+
+@pytest.mark.parametrize("shape", [(6, 6, 6), (4, 32, 40)])  # a table of configurations; above its limit
+def test_dominant_configurations_equal_a_plain_selection_with_labels(shape):
+    """Weight >= 5 % (at most 4, the largest always), largest first, ties by configuration index, with
+    HOMO/LUMO labels: written out root by root with Python's stable sort."""
+    from ppp.analysis.properties import _TABLE_MAX_CONFIGURATIONS, dominant_configurations, orbital_label
+    k, o, v = shape
+    assert (o * v > _TABLE_MAX_CONFIGURATIONS) == (shape[1] == 32)
+    rng = np.random.default_rng(17)
+    x = rng.standard_normal(shape) * 0.1
+    x[1] = 0.0
+    x[1, 0, :3] = x[1, 1, 0] = 0.5  # four equal weights: the order follows the index
+    x[2] = 0.01 * rng.random((o, v))  # every weight below 5 %: the largest is kept alone
+    got = dominant_configurations(x, o)
+    for root, confs in zip(x, got):
+        w = (root * root).ravel().tolist()
+        order = sorted(range(len(w)), key=lambda q: -w[q])[:4]
+        want = [q for j, q in enumerate(order) if j == 0 or w[q] >= 0.05]
+        assert [(c.occupied, c.virtual, c.weight) for c in confs] == [(q // v, o + q % v, w[q]) for q in want]
+        assert [(c.from_label, c.to_label) for c in confs] == [(orbital_label(q // v, o), orbital_label(o + q % v, o))
+                                                               for q in want]
+    assert [(c.occupied, c.virtual) for c in got[1]] == [(0, o), (0, o + 1), (0, o + 2), (1, o)]
+    assert len(got[2]) == 1

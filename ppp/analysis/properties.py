@@ -118,7 +118,7 @@ def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: floa
     k = amplitudes.shape[0]
     if k == 0:
         return []
-    n_vir = amplitudes.shape[2]
+    n_rows, n_vir = amplitudes.shape[1:]  # occupied orbitals n_occ, virtual ones n_vir (as a rule)
     w = (amplitudes * amplitudes).reshape(k, -1)
     m = min(max_count, w.shape[1])
     rows = np.arange(k)[:, None]
@@ -130,8 +130,8 @@ def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: floa
         order = np.argsort(-w, axis=1, kind="stable")[:, :m]
     weights = w[rows, order].tolist()
     # flat index ia -> (i, a, label of i, label of a)
-    if n_occ * n_vir <= _TABLE_MAX_CONFIGURATIONS:
-        table = _configuration_table(n_occ, n_vir).__getitem__
+    if n_rows * n_vir <= _TABLE_MAX_CONFIGURATIONS:
+        table = _configuration_table(n_occ, n_rows, n_vir).__getitem__
     else:
         labels = _labels(n_occ, n_occ + n_vir)
 
@@ -163,11 +163,12 @@ def _labels(n_occ: int, n_orbitals: int) -> tuple[str, ...]:
 
 
 @lru_cache(maxsize=64)
-def _configuration_table(n_occ: int, n_vir: int) -> tuple[tuple[int, int, str, str], ...]:
-    """(i, a, :func:`orbital_label` of i, of a) for each configuration index ia = i * n_vir + (a - n_occ),
-    kept per (n_occ, n_vir): state records ask for the same ones (orbital indices, not results)."""
+def _configuration_table(n_occ: int, n_rows: int, n_vir: int) -> tuple[tuple[int, int, str, str], ...]:
+    """(i, a, :func:`orbital_label` of i, of a) for each configuration index ia = i * n_vir + (a - n_occ) of
+    amplitudes (k, n_rows, n_vir), kept per shape: state records ask for the same ones (orbital indices
+    and labels, not results)."""
     labels = _labels(n_occ, n_occ + n_vir)
-    return tuple((i, a, labels[i], labels[a]) for i in range(n_occ) for a in range(n_occ, n_occ + n_vir))
+    return tuple((i, a, labels[i], labels[a]) for i in range(n_rows) for a in range(n_occ, n_occ + n_vir))
 
 
 @dataclass(frozen=True)
