@@ -252,7 +252,8 @@ def test_scf_rings_are_not_shared_between_threads(monkeypatch):
             np.testing.assert_array_equal(got[2], alone[k][2])
 
 
-def test_scf_ring_pool_stays_small():
+def test_scf_ring_pool_stays_small(monkeypatch):
+    monkeypatch.setattr(scf, "JIT_MIN_CENTRES", 10**9)  # the numpy loop even if numba is loaded
     for n in range(5, 5 + 2 * scf.RING_POOL_SIZES):
         core, gamma, n_occ, p0 = _random_model(n, n // 2, n)
         scf.iterate(core, gamma, n_occ, p0, max_iter=5)
