@@ -285,3 +285,22 @@ def test_dominant_configurations_equal_a_plain_selection_with_labels(shape):
                                                                for q in want]
     assert [(c.occupied, c.virtual) for c in got[1]] == [(0, o), (0, o + 1), (0, o + 2), (1, o)]
     assert len(got[2]) == 1
+
+
+def test_states_from_columns_equal_the_dataclass_constructor():
+    """Records made by filling the slots equal those of State(...): fields, equality, hash, repr, pickle."""
+    import pickle
+
+    from ppp.analysis.properties import Configuration
+    from ppp.results import State, states_from_columns
+    conf = (Configuration(2, 3, 0.9, "HOMO", "LUMO"),)
+    cols = ([1.5, 2.25], [0.1, 0.0], [(0.1, -0.2, 0.0), (0.0, 0.0, 0.0)], [(116.6, "mixed"), (None, "-")],
+            [conf, ()])
+    fast = states_from_columns(1, 2, *cols)
+    plain = tuple(State(1, n, 2, e, f, d, pd, p, c)
+                  for n, (e, f, d, (pd, p), c) in enumerate(zip(*cols), 1))
+    assert fast == plain and type(fast[0]) is State
+    assert [hash(s) for s in fast] == [hash(s) for s in plain]
+    assert [repr(s) for s in fast] == [repr(s) for s in plain]
+    assert pickle.loads(pickle.dumps(fast)) == plain
+    assert fast[1].label == "S2" and fast[0].character == str(conf[0])
