@@ -144,9 +144,10 @@ def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: floa
         i, a, li, la = table(q_row[0])
         confs = [new(Configuration, (i, a, w_row[0], li, la))]  # the largest, whatever its weight
         for q, wt in zip(q_row[1:], w_row[1:]):
-            if wt >= min_weight:
-                i, a, li, la = table(q)
-                confs.append(new(Configuration, (i, a, wt, li, la)))
+            if not wt >= min_weight:  # the weights fall along the row: none of the rest is kept either
+                break
+            i, a, li, la = table(q)
+            confs.append(new(Configuration, (i, a, wt, li, la)))
         out.append(tuple(confs))
     return out
 
