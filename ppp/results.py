@@ -56,7 +56,8 @@ def states_from_columns(multiplicity: int, chromophore: int, energies, strengths
     given; one sequence per field (``polarizations``: (angle or None, label) pairs). The records equal
     those of ``State(...)`` (tests/test_small_overhead.py); they are made by filling the slots directly,
     which costs half as much as the frozen dataclass's ``__init__`` (one ``object.__setattr__`` per
-    field), twenty records per molecule."""
+    field), twenty records per molecule. A field added to State must be set here as well: until it is,
+    the unpacking of the setters below fails."""
     new = object.__new__
     s_mult, s_index, s_chrom, s_energy, s_f, s_dip, s_pdeg, s_pol, s_conf = _STATE_SLOT_SETTERS
     out = []
