@@ -19,7 +19,7 @@ from .model import params as param_registry
 from .model import solvent as solvent_model
 from .model import variable_beta
 from .model.hamiltonian import Model, build_model
-from .results import ChromophoreResult, MoleculeResult, State
+from .results import ChromophoreResult, MoleculeResult, State, states_from_columns
 from .solvers import cis as cis_solver
 from .solvers import rpa
 from .solvers import scf as scf_solver
@@ -122,24 +122,29 @@ class Options:
         return self.solvent is not None and not solvent_model.load(self.solvent).is_vacuum
 
 
-def _states(chrom: int, multiplicity: int, res: cis_solver.CISResult, scf, model: Model) -> tuple[State, ...]:
+def _states(chrom: int, sing, trip: cis_solver.CISResult, scf, model: Model
+            ) -> tuple[tuple[State, ...], tuple[State, ...]]:
+    """The State records of the singlet (CIS or RPA) and the triplet roots of one chromophore. The
+    dominant configurations of both multiplicities come from one call on the stacked amplitudes (the
+    selection works root by root, so the records are those of two calls)."""
     n_occ = model.n_occ
-    k = len(res.energies)
+    ks, kt = len(sing.energies), len(trip.energies)
     # RPA: weights X^2 - Y^2 (Z = X + Y gives the transition dipoles below)
-    confs = dominant_configurations(res.character_amplitudes() if isinstance(res, rpa.RPAResult)
-                                    else res.amplitudes, n_occ)
-    energies = res.energies.tolist()
-    if multiplicity == 1 and k:
-        tdm = transition_dipoles(scf.mo_coeff, n_occ, res.amplitudes, model.coords)
-        f = oscillator_strengths(res.energies, tdm).tolist()
-        pol = polarizations(tdm)
-        dips = [tuple(row) for row in tdm.tolist()]
+    amp = sing.character_amplitudes() if isinstance(sing, rpa.RPAResult) else sing.amplitudes
+    if ks and kt and amp.shape[1:] == trip.amplitudes.shape[1:]:
+        confs = dominant_configurations(np.concatenate((amp, trip.amplitudes)), n_occ)
     else:
-        f = [0.0] * k
-        pol = [(None, "-")] * k
-        dips = [(0.0, 0.0, 0.0)] * k
-    return tuple([State(multiplicity, n, chrom, e, fn, dn, pn[0], pn[1], cn)
-                  for n, e, fn, dn, pn, cn in zip(range(1, k + 1), energies, f, dips, pol, confs)])
+        confs = dominant_configurations(amp, n_occ) + dominant_configurations(trip.amplitudes, n_occ)
+    if ks:
+        tdm = transition_dipoles(scf.mo_coeff, n_occ, sing.amplitudes, model.coords)
+        f = oscillator_strengths(sing.energies, tdm).tolist()
+        singlets = states_from_columns(1, chrom, sing.energies.tolist(), f, list(map(tuple, tdm.tolist())),
+                                       polarizations(tdm), confs[:ks])
+    else:
+        singlets = ()
+    triplets = states_from_columns(3, chrom, trip.energies.tolist(), [0.0] * kt, [(0.0, 0.0, 0.0)] * kt,
+                                   [(None, "-")] * kt, confs[ks:])
+    return singlets, triplets
 
 
 def ground_scf(model: Model, options: Options = Options(), index: int = 0, dens0: np.ndarray | None = None,
@@ -208,7 +213,8 @@ def solvent_corrected(res: cis_solver.CISResult, scf, model: Model) -> cis_solve
 
 
 def shared_exchange(scf, model: Model, options: Options) -> np.ndarray | None:
-    """The exchange integrals (ij|ab) of the SCF orbitals (:func:`ppp.solvers.cis.exchange_integrals`),
+    """The exchange integrals (ij|ab) of the SCF orbitals (:func:`ppp.solvers.cis.exchange_integrals`, as
+    the [i, a, j, b] block of :func:`ppp.solvers.cis.exchange_block` in which both matrices read them),
     made once for the dense CIS singlet and triplet matrices, which both contain them; None when they
     are not both dense CIS matrices (the iterative solver, RPA singlets, or no roots of one kind), and
     above ``cis.DENSE_MAX_CONFIGURATIONS`` configurations: the array is as large as a CIS matrix, and
@@ -219,7 +225,7 @@ def shared_exchange(scf, model: Model, options: Options) -> np.ndarray | None:
             or o * v > cis_solver.DENSE_MAX_CONFIGURATIONS
             or cis_solver.choose_solver(o, v, options.cis_solver) != "dense"):
         return None
-    return cis_solver.exchange_integrals(scf.mo_coeff, model.gamma, o)
+    return cis_solver.exchange_block(cis_solver.exchange_integrals(scf.mo_coeff, model.gamma, o), o, v)
 
 
 def singlet_roots(scf, model, options, timer=None, exchange: np.ndarray | None = None
@@ -332,11 +338,12 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
                          f"eV <= 0 (first-order solvent treatment breaks down): triplet energies not reported")
             trip = _no_states(trip)
     with maybe_stage(timer, "properties"):
+        singlets, triplets = _states(index, sing, trip, scf, model)
         return ChromophoreResult(
             index=index,
             atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
             model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
-            singlets=_states(index, 1, sing, scf, model), triplets=_states(index, 3, trip, scf, model),
+            singlets=singlets, triplets=triplets,
             singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
         )
 

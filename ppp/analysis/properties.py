@@ -42,7 +42,7 @@ def dipole_integrals(mo_coeff: np.ndarray, n_occ: int, coords: np.ndarray) -> np
 def oscillator_strengths(energies_ev: np.ndarray, tdm_eangstrom: np.ndarray) -> np.ndarray:
     """Dipole-length oscillator strengths f = (2/3) dE |mu|^2 in atomic units (common practice)."""
     mu_au = np.asarray(tdm_eangstrom) / BOHR_ANGSTROM
-    return (2.0 / 3.0) * (np.asarray(energies_ev) / HARTREE_EV) * np.sum(mu_au * mu_au, axis=-1)
+    return (2.0 / 3.0) * (np.asarray(energies_ev) / HARTREE_EV) * (mu_au * mu_au).sum(axis=-1)
 
 
 def polarization(tdm: np.ndarray, threshold: float = 1e-6) -> tuple[float | None, str]:
@@ -69,11 +69,11 @@ def polarization(tdm: np.ndarray, threshold: float = 1e-6) -> tuple[float | None
 def polarizations(tdm: np.ndarray, threshold: float = 1e-6) -> list[tuple[float | None, str]]:
     """:func:`polarization` of each row of ``tdm`` (k, 3), e*A, evaluated for all rows at once."""
     tdm = np.asarray(tdm, dtype=float).reshape(-1, 3)
-    norm = np.sqrt(np.sum(tdm * tdm, axis=1))
-    in_plane = np.hypot(tdm[:, 0], tdm[:, 1])
-    angle = np.degrees(np.arctan2(tdm[:, 1], tdm[:, 0])) % 180.0
+    x, y, z = tdm.T  # the three columns as views
+    norm = np.sqrt((tdm * tdm).sum(axis=1))
+    angle = np.degrees(np.arctan2(y, x)) % 180.0
     out = []
-    for nrm, z, ip, ang in zip(norm.tolist(), np.abs(tdm[:, 2]).tolist(), in_plane.tolist(), angle.tolist()):
+    for nrm, z, ip, ang in zip(norm.tolist(), np.abs(z).tolist(), np.hypot(x, y).tolist(), angle.tolist()):
         if nrm < threshold:
             out.append((None, "-"))
         elif z > ip:
@@ -113,12 +113,12 @@ class Configuration(NamedTuple):
 def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: float = 0.05,
                             max_count: int = 4) -> list[tuple[Configuration, ...]]:
     """For each root, the configurations with weight >= ``min_weight`` (at most ``max_count``),
-    largest first. amplitudes: (k, n_occ, n_vir)."""
+    largest first; the largest is kept whatever its weight. amplitudes: (k, n_occ, n_vir)."""
     amplitudes = np.asarray(amplitudes)
     k = amplitudes.shape[0]
     if k == 0:
         return []
-    n_vir = amplitudes.shape[2]
+    n_rows, n_vir = amplitudes.shape[1:]  # occupied orbitals n_occ, virtual ones n_vir (as a rule)
     w = (amplitudes * amplitudes).reshape(k, -1)
     m = min(max_count, w.shape[1])
     rows = np.arange(k)[:, None]
@@ -128,22 +128,48 @@ def dominant_configurations(amplitudes: np.ndarray, n_occ: int, min_weight: floa
         order = top[rows, np.argsort(-w[rows, top], axis=1, kind="stable")]
     else:  # short rows: one stable sort of each whole row is cheaper than the selection's calls
         order = np.argsort(-w, axis=1, kind="stable")[:, :m]
-    weights = w[rows, order]
-    keep = weights >= min_weight  # by weight, largest first: the kept ones lead each row ...
-    keep[:, 0] = True  # ... and the largest is kept whatever its weight
-    occ, vir = np.divmod(order, n_vir)
-    labels = _labels(n_occ, n_occ + n_vir)
+    weights = w[rows, order].tolist()
+    # flat index ia -> (i, a, label of i, label of a)
+    if n_rows * n_vir <= _TABLE_MAX_CONFIGURATIONS:
+        table = _configuration_table(n_occ, n_rows, n_vir).__getitem__
+    else:
+        labels = _labels(n_occ, n_occ + n_vir)
+
+        def table(q):
+            i, a = divmod(q, n_vir)
+            return i, a + n_occ, labels[i], labels[a + n_occ]
     new = tuple.__new__  # Configuration's own constructor without its argument handling
-    return [tuple([new(Configuration, (i, a, wt, labels[i], labels[a]))
-                   for i, a, wt, kp in zip(o_row, v_row, wt_row, k_row) if kp])
-            for o_row, v_row, wt_row, k_row in zip(occ.tolist(), (vir + n_occ).tolist(), weights.tolist(),
-                                                   keep.tolist())]
+    out = []
+    for q_row, w_row in zip(order.tolist(), weights):
+        i, a, li, la = table(q_row[0])
+        confs = [new(Configuration, (i, a, w_row[0], li, la))]  # the largest, whatever its weight
+        for q, wt in zip(q_row[1:], w_row[1:]):
+            if not wt >= min_weight:  # the weights fall along the row: none of the rest is kept either
+                break
+            i, a, li, la = table(q)
+            confs.append(new(Configuration, (i, a, wt, li, la)))
+        out.append(tuple(confs))
+    return out
+
+
+#: :func:`dominant_configurations` keeps a table of the configurations of each (n_occ, n_vir) up to this
+#: many (about 0.1 MB; dye-sized systems), and works the few it needs out of their index above
+_TABLE_MAX_CONFIGURATIONS = 1024
 
 
 @lru_cache(maxsize=64)
 def _labels(n_occ: int, n_orbitals: int) -> tuple[str, ...]:
     """:func:`orbital_label` of every orbital, kept per (n_occ, N): state records ask for the same ones."""
     return tuple(orbital_label(p, n_occ) for p in range(n_orbitals))
+
+
+@lru_cache(maxsize=64)
+def _configuration_table(n_occ: int, n_rows: int, n_vir: int) -> tuple[tuple[int, int, str, str], ...]:
+    """(i, a, :func:`orbital_label` of i, of a) for each configuration index ia = i * n_vir + (a - n_occ) of
+    amplitudes (k, n_rows, n_vir), kept per shape: state records ask for the same ones (orbital indices
+    and labels, not results)."""
+    labels = _labels(n_occ, n_occ + n_vir)
+    return tuple((i, a, labels[i], labels[a]) for i in range(n_rows) for a in range(n_occ, n_occ + n_vir))
 
 
 @dataclass(frozen=True)

@@ -53,34 +53,45 @@ def exchange_integrals(mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int) -> n
     return (pair_products(co, co).T @ gamma) @ pair_products(cv, cv)
 
 
+def exchange_block(exchange: np.ndarray, n_occ: int, n_vir: int) -> np.ndarray:
+    """The :func:`exchange_integrals` (ij|ab) [ij, ab] rearranged as they enter the CIS matrices,
+    (n_occ, n_vir, n_occ, n_vir) [i, a, j, b] (a contiguous copy, the same numbers): the singlet and the
+    triplet matrix of the same orbitals then read them in their own order (:func:`cis_matrix`)."""
+    return np.swapaxes(exchange.reshape(n_occ, n_occ, n_vir, n_vir), 1, 2).copy()
+
+
 def cis_matrix(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ: int,
                multiplicity: int = 1, exchange: np.ndarray | None = None) -> np.ndarray:
     """Dense CIS matrix A (n_occ*n_vir, n_occ*n_vir), eV; index ia = i * n_vir + a.
 
-    exchange : optional :func:`exchange_integrals` of the same orbitals (read, not changed); made here
-        when not given. The matrix is the same either way, bit for bit.
+    exchange : optional exchange integrals of the same orbitals (read, not changed), either as made by
+        :func:`exchange_integrals` (2-D, [ij, ab]) or by :func:`exchange_block` (4-D, [i, a, j, b]);
+        made here when not given. The matrix is the same in all three cases, bit for bit.
     """
     if multiplicity not in (1, 3):
         raise ValueError("multiplicity must be 1 or 3")
     co, cv = mo_coeff[:, :n_occ], mo_coeff[:, n_occ:]
     o, v = co.shape[1], cv.shape[1]
-    # exchange-type (ij|ab) as [ij, ab]; the Coulomb-type part is computed first straight into the
-    # result, then the exchange is subtracted through a swapped view ([ij, ab] -> [ia, jb]). Two large
-    # arrays only: fresh large temporaries cost page faults that took longer than the products here.
+    # exchange-type (ij|ab) as [i, a, j, b] (a swapped view of [ij, ab], or a block in that order); the
+    # Coulomb-type part is computed first straight into the result, then the exchange is subtracted.
+    # Two large arrays only: fresh large temporaries cost page faults that took longer than the
+    # products here.
     if exchange is None:
-        j_int = exchange_integrals(mo_coeff, gamma, n_occ)
-    elif exchange.shape != (o * o, v * v):
+        j_int = np.swapaxes(exchange_integrals(mo_coeff, gamma, n_occ).reshape(o, o, v, v), 1, 2)
+    elif exchange.ndim == 4 and exchange.shape == (o, v, o, v):
+        j_int = exchange
+    elif exchange.shape == (o * o, v * v):
+        j_int = np.swapaxes(exchange.reshape(o, o, v, v), 1, 2)
+    else:
         raise ValueError(f"exchange integrals of shape {exchange.shape} do not fit {o} occupied and {v} "
                          f"virtual orbitals")
-    else:
-        j_int = exchange
     if multiplicity == 1:
         b = pair_products(co, cv)  # (N, o*v) transition densities
         a = (2.0 * (b.T @ gamma)) @ b
-        a.reshape(o, v, o, v)[...] -= np.swapaxes(j_int.reshape(o, o, v, v), 1, 2)
+        a.reshape(o, v, o, v)[...] -= j_int
     else:
-        a = np.swapaxes(j_int.reshape(o, o, v, v), 1, 2).copy().reshape(o * v, o * v)
-        np.negative(a, out=a)
+        a = np.empty((o * v, o * v))
+        np.negative(j_int, out=a.reshape(o, v, o, v))
     del j_int
     diag = (mo_energy[n_occ:][None, :] - mo_energy[:n_occ][:, None]).ravel()
     a.ravel()[::o * v + 1] += diag  # the diagonal as a strided view (no index arrays, no flat iterator)
@@ -125,8 +136,8 @@ def kernel(mo_energy: np.ndarray, mo_coeff: np.ndarray, gamma: np.ndarray, n_occ
     dipole_coords : optional (N, 3) centre coordinates; when given, the vectors of each degenerate
         level are rotated by :func:`align_degenerate` so that per-state oscillator strengths do not
         depend on the solver
-    exchange : optional :func:`exchange_integrals` of these orbitals for the dense matrix (e.g. shared
-        by the singlet and triplet calls); ignored by the iterative solver
+    exchange : optional :func:`exchange_integrals` or :func:`exchange_block` of these orbitals for the
+        dense matrix (e.g. shared by the singlet and triplet calls); ignored by the iterative solver
 
     Raises TooLargeError when the dense matrix would exceed ``DENSE_MAX_BYTES``.
     """

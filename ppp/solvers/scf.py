@@ -14,6 +14,7 @@ A run that still fails returns ``converged=False``; callers must not use its orb
 from __future__ import annotations
 
 import sys
+import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -127,6 +128,7 @@ class _DIIS:
         self._a.fill(-1.0)  # (np.full costs five times as much)
         self._rhs = np.zeros(space + 1)
         self._size = 0  # subspace size of the last extrapolation
+        self._largest = 0  # largest size set up so far
         self._f = self._e = None
         self._pending = 0
         self.last_norm = np.inf  # B_ss of the pair stored last
@@ -147,6 +149,19 @@ class _DIIS:
         self._fm = [self._f[:m] for m in range(space + 1)]
         self._em = [self._e[:m] for m in range(space + 1)]
         self._bm = [self._b[:m, :m] for m in range(space + 1)]
+        self._work = None  # scratch arrays of :func:`iterate`, made there on first use
+
+    def reset(self) -> None:
+        """Back to the state of a new ring of the same size: no stored pairs, the bordered system of
+        size 0. The buffers keep their old contents, which are never read: every B_ij, norm, Fock
+        matrix and error of the slots in use is written when its pair is stored."""
+        self.slots.clear()
+        self._a.fill(-1.0)
+        self._rhs.fill(0.0)
+        self._size = 0
+        self._largest = 0
+        self._pending = 0
+        self.last_norm = np.inf
 
     @property
     def focks(self) -> list[np.ndarray]:
@@ -199,25 +214,67 @@ class _DIIS:
             a_b[...] = self._bm[n]
         _, _, coef, info = _lapack.dgesv(a, rhs)  # LU solve, LAPACK called directly (copies a and rhs)
         if info != 0 or not coef.dot(coef) <= 1e16:  # |coef| <= 1e8; NaN fails the test as well
-            try:  # least squares: B becomes near-singular as the error vectors shrink at convergence
-                coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
-            except np.linalg.LinAlgError:
-                coef = None
-            if coef is None or not np.isfinite(coef).all():
-                return self._fv[self.slots[-1]]
+            return self._fallback(a, rhs)
         return coef[:n].dot(self._fm[n]).reshape(self._shape)
+
+    def _fallback(self, a: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+        """The extrapolation when the LU solve of the bordered system fails or gives huge coefficients:
+        least squares (B becomes near-singular as the error vectors shrink at convergence), or the
+        newest Fock matrix when that fails as well."""
+        try:
+            coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
+        except np.linalg.LinAlgError:
+            coef = None
+        if coef is None or not np.isfinite(coef).all():
+            return self._fv[self.slots[-1]]
+        return coef[:len(self.slots)].dot(self._fm[len(self.slots)]).reshape(self._shape)
 
     def _resize(self, n: int) -> None:
         """Set the border of the size-n bordered system: row and column n -1, corner 0, rhs e_n (-1)."""
         old = self._size
         self._rhs[old] = 0.0
         self._rhs[n] = -1.0
-        self._a[n, :n] = -1.0  # (untouched -1 when the size grows; rewritten should it ever shrink)
-        self._a[:n, n] = -1.0
+        if n <= self._largest:  # above every size used so far (the SCF's case: it only grows), row and
+            self._a[n, :n] = -1.0  # column n still hold the -1 of the fill, and only the corner is set
+            self._a[:n, n] = -1.0
+        else:
+            self._largest = n
         self._a[n, n] = 0.0
         self._size = n
         # the size-n system, its right-hand side and its B block, as views kept until the size changes
         self._views = (self._a[:n + 1, :n + 1], self._rhs[:n + 1], self._a[:n, :n])
+
+
+#: :func:`iterate` keeps the DIIS ring and scratch arrays of its last runs for reuse by the next run of
+#: the same size in the same thread, up to this many centres (0.5 MB per size) and this many sizes:
+#: making them costs ~15 us, more than a Fock build and an eigensolve at dye size. Only memory is
+#: reused, never a number (see :meth:`_DIIS.reset`).
+RING_POOL_MAX_CENTRES = 64
+RING_POOL_SIZES = 4
+_ring_pool = threading.local()
+
+
+def _take_ring(space: int, n: int) -> _DIIS:
+    """A DIIS ring for ``space`` slots of N x N in its initial state: this thread's spare one of that
+    size (reset), else a new one."""
+    spare = getattr(_ring_pool, "rings", None)
+    ring = spare.pop((space, n), None) if spare else None
+    if ring is None:
+        return _DIIS(space, n)
+    ring.reset()
+    return ring
+
+
+def _give_back(ring: _DIIS, n: int) -> None:
+    """Keep a ring that :func:`iterate` has finished with for the next run of its size (small N only)."""
+    if n > RING_POOL_MAX_CENTRES:
+        return
+    spare = getattr(_ring_pool, "rings", None)
+    if spare is None:
+        spare = _ring_pool.rings = {}
+    if len(spare) >= RING_POOL_SIZES:
+        del spare[next(iter(spare))]  # the size kept longest
+    spare[(ring.space, n)] = ring
 
 
 def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, *, max_iter: int,
@@ -254,9 +311,27 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
                             bond_beta=form, core_tol=core_tol)
     d = 0.5 * np.asarray(dens0, dtype=float)
     gamma2 = gamma + gamma
-    ring = _DIIS(diis_space if use_diis else 1, n)
-    fd = np.empty((n, n))
+    space = diis_space if use_diis else 1
+    ring = _take_ring(space, n)
+    # the ring's target / commit / extrapolate, inlined below on its buffers (the same operations in the
+    # same order; a method call and its attribute look-ups cost about as much as a small numpy call)
+    slots, fv, ev, dv, em, fm, bm = ring.slots, ring._fv, ring._ev, ring._dv, ring._em, ring._fm, ring._bm
+    e_buf, b_buf, norms = ring._e, ring._b, ring._norm
+    if ring._work is None:
+        # the extrapolated Fock matrix (dsyevd reads it, no copy kept), F D, and two buffers that the
+        # new half densities C_occ C_occ^T go into in turn: the one written is never the density in
+        # use, nor the one of the iteration before (kept for the lazy energy below)
+        dbuf = (np.empty((n, n)), np.empty((n, n)))
+        ring._work = (np.empty((n, n)), np.empty((n, n)), dbuf, (dbuf[0].diagonal(), dbuf[1].diagonal()),
+                      list(e_buf))
+    extrapolated, fd, dbuf, dbuf_diag, e_rows = ring._work
+    extrapolated_flat = extrapolated.reshape(-1)
     fd_t = fd.T
+    which = 0
+    d_diag = d.diagonal()
+    # numpy's functions as locals, outputs passed by position: each look-up and keyword costs a
+    # tenth of a microsecond, a few times per iteration
+    mul, sub, div, gesv = np.multiply, np.subtract, np.divide, _lapack.dgesv
     eye = np.eye(n) if level_shift else None
     old_core = None
     # With DIIS, |FD - DF|^2 comes with the new row of B; max |x| >= |x|_F / N, so while |FD - DF|_F
@@ -267,19 +342,31 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
     gate = (0.5 * n * conv_tol_grad) ** 2 * (1.0 + 1e-6)
     e_old = np.inf  # energy of the iteration before; None when not computed
     prev = None
+    last_norm = np.inf
+    size = 0  # subspace size of the last extrapolation (the ring's bordered system)
     for it in range(1, max_iter + 1):
         if core_update is not None:
             old_core = core
             core = core_update(d + d)
-        fock, err, fdiag = ring.target()
-        np.multiply(d, gamma, out=fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
-        np.subtract(core, fock, out=fock)
-        fdiag += gamma2.dot(d.diagonal())  # the diagonal, as a strided view
-        fock.dot(d, out=fd)
-        np.subtract(fd, fd_t, out=err)  # (FP - PF) / 2: one matrix product for symmetric F and P
-        if use_diis:
-            ring.commit()
-        if not lazy or ring.last_norm < gate:
+        slot = slots[0] if len(slots) == space else len(slots)  # ring.target(): the oldest slot when full
+        fock = fv[slot]
+        err = ev[slot]
+        fdiag = dv[slot]
+        mul(d, gamma, fock)  # F = h - 1/2 P o gamma + diag(gamma diag(P))  (module doc)
+        sub(core, fock, fock)
+        fdiag += gamma2.dot(d_diag)  # the diagonal, as a strided view
+        fock.dot(d, fd)
+        sub(fd, fd_t, err)  # (FP - PF) / 2: one matrix product for symmetric F and P
+        if use_diis:  # ring.commit(): B gains the row of the new error
+            if len(slots) == space:
+                slots.pop(0)  # overwrite the oldest
+            slots.append(slot)
+            m = len(slots)  # slots 0..m-1 are in use
+            row = em[m].dot(e_rows[slot])
+            b_buf[slot, :m] = row
+            b_buf[:m, slot] = row
+            last_norm = norms[slot] = float(row[slot])
+        if not lazy or last_norm < gate:
             e = float(np.vdot(d, core)) + float(np.vdot(d, fock))
             if e_old is None:
                 pd, pc, pf = prev
@@ -288,23 +375,47 @@ def iterate(core: np.ndarray, gamma: np.ndarray, n_occ: int, dens0: np.ndarray, 
             # antisymmetric: its largest entry is its largest |entry|
             if (abs(e - e_old) < max(conv_tol, 1e3 * _EPS * abs(e)) and 2.0 * float(err.max()) < conv_tol_grad
                     and _core_change(core, old_core, core_update is not None, it) < core_tol):
+                _give_back(ring, n)
                 return True, it, d + d
         else:
             e = None
         e_old = e
         prev = (d, core, fock)
         f_use = fock
-        if use_diis and len(ring.slots) >= 2:
-            f_use = ring.extrapolate()
+        if use_diis and m >= 2:  # ring.extrapolate()
+            if m != size:
+                ring._resize(m)
+                size = m
+                a, rhs, a_b = ring._views
+            scale = max(norms[:m])  # B is a Gram matrix: its largest entry lies on its diagonal
+            if scale > 0:
+                div(bm[m], scale, a_b)
+            else:
+                a_b[...] = bm[m]
+            _, _, coef, info = gesv(a, rhs)
+            if info != 0 or not coef.dot(coef) <= 1e16:
+                f_use = ring._fallback(a, rhs)  # least squares, or the newest Fock matrix
+            else:
+                coef[:m].dot(fm[m], extrapolated_flat)
+                f_use = extrapolated
         if level_shift:
             f_use = f_use + level_shift * (eye - d)  # shift of the virtual space, I - P/2 (Saunders & Hillier 1973)
         _, c, info = _lapack.dsyevd(f_use)  # eigh() inlined: a function call less per iteration
         if info != 0:
             c = np.linalg.eigh(f_use)[1]
         c = c[:, :n_occ]
-        new = c.dot(c.T)
-        d = (1.0 - damping) * new + damping * d if damping else new
-    return False, max_iter, d + d
+        new = dbuf[which]
+        c.dot(c.T, new)
+        if damping:
+            d = (1.0 - damping) * new + damping * d
+            d_diag = d.diagonal()
+        else:
+            d = new
+            d_diag = dbuf_diag[which]
+        which ^= 1
+    d = d + d
+    _give_back(ring, n)
+    return False, max_iter, d
 
 
 def _core_change(core: np.ndarray, old_core: np.ndarray | None, updated: bool, it: int) -> float:
@@ -345,13 +456,19 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
     if dens0 is None:
         _, c0 = eigh(core)
         dens0 = density(c0, n_occ)
-    kw = dict(conv_tol=conv_tol, conv_tol_grad=conv_tol_grad)
     starts = [("diis", dens0)]
     if alt_dens0 is not None:
         alt = ("diis-kekule-start", np.asarray(alt_dens0, dtype=float))
         starts = [alt, starts[0]] if alt_first else [starts[0], alt]
-    dens0 = starts[0][1]
-    attempts = [(name, [dict(max_iter=max_iter, start=d)]) for name, d in starts]
+    # the first attempt (nearly always the last): DIIS from the first start
+    strategy, dens0 = starts[0]
+    converged, total, dens = iterate(core, gamma, n_occ, dens0, max_iter=max_iter, conv_tol=conv_tol,
+                                     conv_tol_grad=conv_tol_grad)
+    res = finish(core, gamma, n_occ, dens, converged, total, strategy)
+    if res.converged:
+        return res
+    kw = dict(conv_tol=conv_tol, conv_tol_grad=conv_tol_grad)
+    attempts = [(name, [dict(max_iter=max_iter, start=d)]) for name, d in starts[1:]]
     if fallback:
         attempts += [
             ("level-shift", [dict(max_iter=max_iter, use_diis=False, level_shift=1.0, damping=0.3),
@@ -359,10 +476,6 @@ def kernel(core: np.ndarray, gamma: np.ndarray, n_occ: int, *, max_iter: int = 1
             ("strong-level-shift", [dict(max_iter=4 * max_iter, use_diis=False, level_shift=4.0, damping=0.5),
                                     dict(max_iter=max_iter)]),
         ]
-    total = 0
-    dens = dens0
-    strategy = "diis"
-    converged = False
     for strategy, steps in attempts:
         dens = dens0
         converged = False
