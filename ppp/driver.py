@@ -457,11 +457,15 @@ def build_models(mol: Chem.Mol, options: Options = Options(), timer: StageTimer 
     if pset is None:
         with maybe_stage(timer, "parameters"):
             pset = load_parameters(options.parameters)
-    out = []
+    return tuple((prep.system, model) for prep, model in _prepared_models(mol, options, timer, pset))
+
+
+def _prepared_models(mol: Chem.Mol, options: Options, timer: StageTimer | None, pset):
+    """(Prepared, Model) of each chromophore in turn (:func:`prepare`, then :func:`model_for`)."""
     for prep in prepare(mol, options, pset.bond_length_angstrom, timer):
         with maybe_stage(timer, "model (gamma, h)"):
-            out.append((prep.system, model_for(prep, pset, options)))
-    return tuple(out)
+            model = model_for(prep, pset, options)
+        yield prep, model
 
 
 @lru_cache(maxsize=16)
@@ -542,9 +546,7 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
         with maybe_stage(timer, "parameters"):
             pset = load_parameters(opts.parameters)
         chroms = []
-        for k, prep in enumerate(prepare(mol, opts, pset.bond_length_angstrom, timer)):
-            with maybe_stage(timer, "model (gamma, h)"):
-                model = model_for(prep, pset, opts)
+        for k, (prep, model) in enumerate(_prepared_models(mol, opts, timer, pset)):
             chroms.append(solve_model(model, opts, index=k, atom_indices=prep.system.atom_indices, timer=timer,
                                       dens_guess=prep.kekule))
     except PPPError as err:
