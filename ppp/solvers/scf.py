@@ -114,6 +114,12 @@ class _DIIS:
     each call counts next to a ~10 us eigensolve).
     The extrapolation does not depend on the scale of the error vectors (B is normalised), so the SCF
     may store any fixed multiple of FP - PF.
+
+    :func:`iterate` performs the steps of :meth:`target`, :meth:`commit` and :meth:`extrapolate` inline
+    on these buffers (the same operations in the same order; at dye size a method call costs as much as
+    a small numpy call), so those methods are the readable statement of the steps, used by :meth:`push`
+    and the tests; a change to one must be made to the other (``tests/test_scf_loop.py`` checks the loop
+    bit for bit against ``tests/scf_reference.py``).
     """
 
     def __init__(self, space: int, n: int | None = None):
