@@ -29,7 +29,7 @@ from .solvers.threads import blas_threads
 from .structure.geometry import atom_positions, centre_coordinates
 from .structure.perceive import PiSystem, perceive
 from .structure.cavity import cavity_spheres
-from .structure.twist import embed_conformer, twist_factors
+from .structure.twist import embed_conformer, resonance_variable_bonds, twist_factors
 from .structure.readers import mol_from_smiles
 
 #: Where centre coordinates can come from (see :class:`Options`).
@@ -405,10 +405,13 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     # supplies the twist angles; the centres keep the idealised planar coordinates (gamma, dipoles),
     # because force-field bond lengths follow one resonance structure and would break the symmetry of
     # delocalised dyes (cyanines) through gamma.
-    geo, pos, is3d = work, None, False
+    geo, pos, is3d, untwisted = work, None, False, None
     if options.coordinates == "conformer":
         with maybe_stage(timer, "conformer"):
             geo, _ = embed_conformer(work, options.conformer_seed)
+            # the force field relaxed one resonance structure: bonds along a delocalised charge's path
+            # keep beta untwisted (structure/twist.py)
+            untwisted = resonance_variable_bonds(work) if options.twist else None
     if options.coordinates in ("input", "conformer") and geo.GetNumConformers():
         conf = geo.GetConformer()
         pos = np.asarray(conf.GetPositions(), dtype=float)
@@ -423,7 +426,8 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
                 positions = atom_positions(work, source)
             coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
                                         all_pi_bonds=all_bonds, positions=positions)
-            twist = twist_factors(geo, pos, sys_.atom_indices, sys_.bonds) if (is3d and options.twist) else None
+            twist = (twist_factors(geo, pos, sys_.atom_indices, sys_.bonds, untwisted)
+                     if (is3d and options.twist) else None)
             cav = (cavity_spheres(work, sys_.atom_indices, coords, source, bond_length, all_bonds)
                    if with_cavity else None)
         with maybe_stage(timer, "perception"):

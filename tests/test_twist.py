@@ -206,3 +206,48 @@ def test_sdf_record_with_explicit_hydrogens(tmp_path):
     # and the solvent cavity is built from the record's own geometry
     solv = ppp.compute(rec.mol, coordinates="input", n_singlets=3, n_triplets=0, solvent="hexane")
     assert abs(solv.s1.energy_ev - res.s1.energy_ev) < 0.01
+
+
+def test_resonance_variable_bonds():
+    """Bonds along a delocalised charge's path, by RDKit's resonance structures: all four chain bonds of
+    the trimethine streptocyanine (its two resonance structures swap single and double bonds), the
+    three ring-to-centre bonds and both N-aryl bonds of crystal violet (three structures, the charge on
+    each N in turn); none for neutral molecules without charged forms (biphenyl, a polyene)."""
+    from ppp.structure.twist import resonance_variable_bonds
+    strepto = resonance_variable_bonds(mol_from_smiles("CN(C)C=CC=[N+](C)C"))
+    assert strepto == {frozenset(p) for p in [(1, 3), (3, 4), (4, 5), (5, 6)]}
+    cv = mol_from_smiles("CN(C)c1ccc(cc1)C(=C1C=CC(C=C1)=[N+](C)C)c1ccc(cc1)N(C)C")
+    got = resonance_variable_bonds(cv)
+    centre = 9
+    assert {b for b in got if centre in b} == {frozenset((centre, n.GetIdx()))
+                                               for n in cv.GetAtomWithIdx(centre).GetNeighbors()}
+    n_aryl = {frozenset((a.GetIdx(), n.GetIdx())) for a in cv.GetAtoms() if a.GetSymbol() == "N"
+              for n in a.GetNeighbors() if n.GetIsAromatic() or n.GetSymbol() == "C" and n.GetDegree() == 3}
+    assert n_aryl <= got and len(n_aryl) == 3
+    assert resonance_variable_bonds(mol_from_smiles("c1ccc(cc1)-c1ccccc1")) == set()
+    assert resonance_variable_bonds(mol_from_smiles("C=CC=CC=C")) == set()
+
+
+def test_conformer_leaves_delocalised_charge_path_untwisted():
+    """MMFF relaxes one resonance structure of crystal violet and turns the two rings on formal single
+    bonds by about 90 degrees (measured 2026-12-02); those bonds keep beta untwisted, so the dye's band
+    stays that of the planar model instead of moving by more than an eV. A neutral biaryl keeps its twist
+    (test above), and so does the pendant carboxyphenyl of rhodamine B, which no resonance structure
+    conjugates."""
+    cv = "CN(C)c1ccc(cc1)C(=C1C=CC(C=C1)=[N+](C)C)c1ccc(cc1)N(C)C"
+    (prep,) = prepare(mol_from_smiles(cv), Options(coordinates="conformer"))
+    bonds = prep.system.atom_indices[prep.system.bonds]
+    centre = [k for k, (i, j) in enumerate(bonds) if 9 in (i, j)]
+    assert len(centre) == 3 and np.all(prep.twist[centre] == 1.0)
+    planar = ppp.compute(cv, n_triplets=0).first_bright.energy_ev
+    conf = ppp.compute(cv, coordinates="conformer", n_triplets=0).first_bright.energy_ev
+    assert abs(conf - planar) < 0.05
+    rhod = "CCN(CC)c1ccc2c(c1)oc1cc(=[N+](CC)CC)ccc-1c2-c1ccccc1C(=O)O"
+    mol = mol_from_smiles(rhod)
+    (prep,) = prepare(mol, Options(coordinates="conformer"))
+    bonds = prep.system.atom_indices[prep.system.bonds]
+    pendant = [k for k, (i, j) in enumerate(bonds)
+               if not mol.GetBondBetweenAtoms(int(i), int(j)).IsInRing()
+               and {mol.GetAtomWithIdx(int(i)).GetIsAromatic(), mol.GetAtomWithIdx(int(j)).GetIsAromatic()} == {True}
+               and mol.GetAtomWithIdx(int(i)).GetDegree() == 3 and mol.GetAtomWithIdx(int(j)).GetDegree() == 3]
+    assert pendant and prep.twist[pendant].min() < 0.7

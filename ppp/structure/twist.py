@@ -13,6 +13,14 @@ The p axis of a centre is the normal to the plane of its sigma neighbours (heavy
 needed): for three neighbours the least-squares plane through them, for two the plane through the centre
 and both. A centre with one heavy neighbour, or collinear neighbours (nitrile, alkyne), has no defined
 axis; bonds to it keep the untwisted beta (factor 1).
+
+A force field relaxes the one resonance structure it is given. Where a charge is delocalised (cyanines,
+triarylmethane and xanthene dyes, push-pull chromophores written with a separated charge), half of the
+bonds along its path are formal single bonds in that structure and twist almost freely, although they
+have partial double-bond character: MMFF94 turned two rings of crystal violet by 90 degrees instead of
+the ~30 degree propeller, and a formal single bond of thiacyanine by 77 degrees. For a conformer, the
+acyclic bonds whose order differs between the molecule's resonance structures
+(:func:`resonance_variable_bonds`) therefore keep the untwisted beta.
 """
 from __future__ import annotations
 
@@ -27,6 +35,9 @@ from ..errors import InputError
 N_CONFORMERS = 8
 #: Seconds RDKit may spend on one embedding attempt.
 EMBED_TIMEOUT_S = 5
+#: Resonance structures enumerated at most (RDKit's own default is 1000; beyond this the bonds found
+#: so far are used, which can only leave fewer bonds untwisted).
+MAX_RESONANCE_STRUCTURES = 200
 #: Below this |cross product| (A^2) two neighbour vectors count as collinear.
 _COLLINEAR = 1e-3
 
@@ -47,8 +58,39 @@ def p_axis(centre: np.ndarray, neighbours: np.ndarray) -> np.ndarray | None:
     return None
 
 
+def resonance_variable_bonds(mol: Chem.Mol) -> set[frozenset[int]]:
+    """Acyclic bonds that are single in one resonance structure of ``mol`` and double in another, as
+    sets of the two RDKit atom indices.
+
+    Resonance structures are RDKit's (``ResonanceMolSupplier``: moves of charges and multiple bonds
+    through conjugated systems, without creating new charge separation); ring bonds are left out, since
+    a ring keeps them planar whatever their formal order. A neutral molecule with no charged resonance
+    form (polyenes, biaryls, azobenzenes) has none.
+    """
+    if not any(a.GetFormalCharge() for a in mol.GetAtoms()):
+        return set()
+    orders: dict[int, set[float]] = {}
+    try:
+        supplier = Chem.ResonanceMolSupplier(mol, 0, MAX_RESONANCE_STRUCTURES)
+        for k in range(len(supplier)):
+            res = supplier[k]
+            if res is None:
+                continue
+            for bond in res.GetBonds():
+                if not bond.IsInRing():
+                    orders.setdefault(bond.GetIdx(), set()).add(bond.GetBondTypeAsDouble())
+    except (RuntimeError, ValueError) as exc:
+        raise InputError(f"resonance structures for the conformer's twist angles failed (RDKit): {exc}") from exc
+    out = set()
+    for idx, seen in orders.items():
+        if len(seen) > 1:
+            b = mol.GetBondWithIdx(idx)
+            out.add(frozenset((b.GetBeginAtomIdx(), b.GetEndAtomIdx())))
+    return out
+
+
 def twist_factors(mol: Chem.Mol, positions: np.ndarray, atom_indices: np.ndarray,
-                  bonds: np.ndarray) -> np.ndarray:
+                  bonds: np.ndarray, untwisted: set[frozenset[int]] | None = None) -> np.ndarray:
     """|cos theta| between the p axes of each bonded pair of centres, (M,).
 
     Parameters
@@ -57,6 +99,7 @@ def twist_factors(mol: Chem.Mol, positions: np.ndarray, atom_indices: np.ndarray
     positions : (n_atoms, 3) A, 3D coordinates of all atoms of ``mol``
     atom_indices : (N,) RDKit indices of the chromophore's centres
     bonds : (M, 2) local index pairs
+    untwisted : bonds (sets of two RDKit atom indices) that keep factor 1 whatever their geometry
     """
     positions = np.asarray(positions, dtype=float)
     axes = []
@@ -65,7 +108,10 @@ def twist_factors(mol: Chem.Mol, positions: np.ndarray, atom_indices: np.ndarray
         nbrs = [nb.GetIdx() for nb in atom.GetNeighbors() if nb.GetAtomicNum() != 1]
         axes.append(p_axis(positions[int(a)], positions[nbrs]))
     out = np.ones(len(bonds))
+    untwisted = untwisted or set()
     for k, (i, j) in enumerate(np.asarray(bonds, dtype=int).reshape(-1, 2)):
+        if frozenset((int(atom_indices[i]), int(atom_indices[j]))) in untwisted:
+            continue
         if axes[i] is not None and axes[j] is not None:
             out[k] = min(1.0, abs(float(axes[i] @ axes[j])))
     return out
