@@ -6,7 +6,10 @@ thiophene S 2, halogen 2, nitro (N 1 + O 1 + O- 2), cyano (C 1 + N 1), trivalent
 """
 from __future__ import annotations
 
+import numpy as np
 import pytest
+
+from ppp import compute
 
 from ppp.errors import ParseError, UnsupportedError
 from ppp.structure.perceive import perceive
@@ -66,6 +69,8 @@ def test_resonance_forms_give_identical_types():
     ("OS(=O)(=O)c1ccccc1", 6),            # sulfonic acid left out
     ("[O-]S(=O)(=O)c1ccccc1", 6),         # sulfonate left out
     ("CS(=O)(=O)c1ccccc1", 6),            # sulfone left out
+    ("CS(=O)c1ccccc1", 6),                # sulfoxide left out
+    ("Oc1ccc(cc1)[As](O)(O)=O", 7),       # arsonic acid left out like a phosphonate (phenol O kept)
     ("C[N+](C)(C)c1ccccc1", 6),           # ammonium left out
     ("CCCCc1ccccc1", 6),                  # sp3 chain left out
     ("OCCc1ccccc1", 6),                   # aliphatic OH not conjugated
@@ -74,6 +79,40 @@ def test_resonance_forms_give_identical_types():
 def test_non_conjugating_groups_left_out(smiles, n_centres):
     (system,) = pis(smiles)
     assert system.n_centres == n_centres
+
+
+def test_thiopyrylium_and_sulfonium_forms_of_dyes():
+    """S+ with two sigma bonds and a double bond (thiopyrylium, and methylene blue as PubChem writes it,
+    with =[S+]- in the ring) is a pi-centre typed like thiophene S with one pi electron, as iminium N+
+    is an amino-type N with one: not a hypervalent sulfone-type S (those were refused before, 2026-12-02).
+    The sulfonium and the iminium form of methylene blue are one molecule: same types, same states."""
+    for kekule, aromatic in [("C1=CC=[S+]C=C1", "c1cc[s+]cc1")]:
+        a, b = pis(kekule)[0], pis(aromatic)[0]
+        assert a.n_centres == b.n_centres == 6 and a.n_electrons == b.n_electrons == 6
+        assert sorted(a.types) == sorted(b.types) and a.types.count("S.thia") == 1
+    sulfonium = "CN(C)C1=CC2=C(C=C1)N=C3C=CC(=CC3=[S+]2)N(C)C"
+    iminium = "CN(C)c1ccc2nc3ccc(=[N+](C)C)cc3sc2c1"
+    a, b = pis(sulfonium)[0], pis(iminium)[0]
+    assert sorted(a.types) == sorted(b.types) and a.n_electrons == b.n_electrons == 18 and a.charge == b.charge == 1
+    ea = [s.energy_ev for s in compute(sulfonium, n_triplets=0, n_singlets=3).singlets]
+    eb = [s.energy_ev for s in compute(iminium, n_triplets=0, n_singlets=3).singlets]
+    assert np.allclose(ea, eb, atol=1e-8)
+
+
+def test_disulfide_and_peroxide_split_the_pi_system():
+    """An acyclic S-S or O-O bond between lone-pair donors is no pi bond (staggered lone pairs, C-S-S-C
+    dihedral about 90 degrees; common knowledge): diphenyl disulfide is two thiophenol-type chromophores,
+    dibenzoyl peroxide two benzoate-type ones (before 2026-12-02 both were refused for a missing
+    S.thia-S.thia / O.oxa-O.oxa beta, 39 of RDKit's 5,000 NCI test molecules). In a ring the S-S bond
+    stays, with the sets' rough ring S-S beta."""
+    systems = pis("c1ccc(cc1)SSc1ccccc1")
+    assert [s.n_centres for s in systems] == [7, 7] and [s.n_electrons for s in systems] == [8, 8]
+    systems = pis("O=C(OOC(=O)c1ccccc1)c1ccccc1")
+    assert [s.n_centres for s in systems] == [9, 9]
+    assert len(pis("S(SC1=NC2=CC=CC=C2S1)C3=NC4=C(S3)C=CC=C4")) == 2
+    (ring,) = pis("S=C1C=CSS1")  # 1,2-dithiole-3-thione: one system through the ring S-S bond
+    assert ring.n_centres == 6 and len(ring.bonds) == 6
+    assert compute("S=C1C=CSS1", n_triplets=0).singlets
 
 
 def test_separate_pi_systems_are_separate_chromophores():
@@ -91,6 +130,7 @@ def test_salt_counter_ion_is_not_a_chromophore():
     ("CCCC", "no pi-system"),
     ("c1ccccc1[CH2]", "radical"),
     ("[Se]=Cc1ccccc1", "(Se)"),
+    ("NC1=CC(=CC=C1O)[As]=O", "atom 9 (As): multiple bond"),  # As(III)=O is a real double bond: refused
     ("c1ccccc1[N+]#N", "odd number"),
     # aromatic rings with an element the model does not cover: refused, never computed as the open chain
     # that is left without it (selenophene would otherwise come out as butadiene)

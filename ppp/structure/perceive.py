@@ -4,13 +4,18 @@ charge and electron count, and how they split into separate chromophores.
 Rules (common practice in PPP work, written out so they can be checked):
 
 * An atom is *unsaturated* when it takes part in a double, triple or aromatic bond to another
-  C, N, O, B or divalent S atom. Multiple bonds to hypervalent S or P (sulfone, sulfonate,
-  sulfoxide, phosphonate) do not conjugate and are left out with their oxygens. A multiple bond
-  from the system to any other element is an error naming the atom.
+  C, N, O, B or divalent S atom (also S+ with two sigma bonds: the thiopyrylium and thionium S of
+  thiopyrylium and phenothiazinium dyes written with =[S+]-, which is typed like thiophene S).
+  Multiple bonds to hypervalent S, P or As (sulfone, sulfonate, sulfoxide, phosphonate, arsonate:
+  more bonds than the element's normal valence, counting +1 for a positive charge) do not conjugate
+  and are left out with their oxygens. A multiple bond from the system to any other element is an
+  error naming the atom.
 * A *donor* is a saturated-looking atom with a p-type lone pair or an empty p orbital bonded to
   an unsaturated atom: amine/amide/pyrrole N (three sigma bonds), ether/hydroxy/furan O, phenolate
   O-, thioether S, halogens, carbanion and carbocation C, and trivalent B. Atoms with four sigma
   bonds (sp3 C, ammonium N+) are never part of the system.
+* An acyclic S-S or O-O bond between two donors (disulfide, peroxide) is not a pi bond: its lone
+  pairs are staggered, so the two sides are separate chromophores.
 * The centre type follows the element and the number of sigma bonds, not the resonance form, so
   that symmetric cyanines, carboxylates and nitro groups keep their symmetry:
   N with <= 2 sigma bonds is ``N.aza`` (core charge Z = 1), with 3 it is ``N.amino`` (Z = 2);
@@ -37,8 +42,9 @@ from ..errors import (NoPiSystemError, OpenShellError, ParseError, RadicalError,
 
 #: Elements that can hold a pi multiple bond inside the system.
 _MULTIPLE_BOND_ELEMENTS = {"C", "N", "O", "B", "S"}
-#: Elements whose hypervalent multiple bonds (S=O in sulfones, P=O) are non-conjugating groups.
-_NON_CONJUGATING_CENTRES = {"S", "P"}
+#: Elements whose hypervalent multiple bonds (S=O in sulfones, P=O, As=O in arsonates) are
+#: non-conjugating groups, with the element's normal valence (a positive charge adds one: R2S+=C).
+_NON_CONJUGATING_CENTRES = {"S": 2, "P": 0, "As": 3}
 _HALOGENS = {"F", "Cl", "Br", "I"}
 
 
@@ -179,9 +185,14 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     # sigma bonds: the atom's degree (its bonds, i.e. len(neighbours)) plus its hydrogens
     nsig = [len(nb) + a.GetTotalNumHs() for nb, a in zip(neighbours, all_atoms)]
 
-    def hypervalent(i: int) -> bool:  # _is_hypervalent on the lists
-        return sym[i] in _NON_CONJUGATING_CENTRES and (
-            sym[i] == "P" or nsig[i] > 2 or all_atoms[i].GetTotalValence() > 2)
+    def hypervalent(i: int) -> bool:
+        # more bonds than the normal valence (S 2, As 3; +1 for a positive charge); P=X always (phosphonate,
+        # phosphine oxide, phosphate). A thionium S+ (two sigma bonds and a double bond) is not hypervalent.
+        normal = _NON_CONJUGATING_CENTRES.get(sym[i])
+        if normal is None:
+            return False
+        return (sym[i] == "P" or (sym[i] == "S" and nsig[i] > 2)
+                or all_atoms[i].GetTotalValence() > normal + max(charge[i], 0))
 
     multiple = (Chem.BondType.DOUBLE, Chem.BondType.TRIPLE)
     unsaturated = [False] * n_atoms
@@ -225,6 +236,18 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     if not any(in_pi):
         raise NoPiSystemError("no pi-system (no conjugated multiple bonds)")
 
+    # an acyclic S-S or O-O bond between two lone-pair donors (disulfide, peroxide) is no pi bond: the
+    # lone pairs are staggered (C-S-S-C dihedral about 90 degrees; common knowledge), so the two sides
+    # are separate chromophores. In a ring (1,2-dithiole) the bond stays and needs its own beta.
+    cut = set()
+    for k, (i, j) in enumerate(ends):
+        if (sym[i] == sym[j] and sym[i] in ("S", "O") and in_pi[i] and in_pi[j]
+                and not unsaturated[i] and not unsaturated[j] and not all_bonds[k].IsInRing()):
+            cut.add((i, j))
+            cut.add((j, i))
+            neighbours[i].remove(j)
+            neighbours[j].remove(i)
+
     # connected components of the pi graph
     comp = [-1] * n_atoms
     n_comp = 0
@@ -259,7 +282,7 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
         bonds, doubles = [], []
         for bt, (bi, bj) in zip(order, ends):
             i, j = local.get(bi), local.get(bj)
-            if i is not None and j is not None:
+            if i is not None and j is not None and (bi, bj) not in cut:
                 bonds.append((min(i, j), max(i, j)))
                 if bt == double:
                     doubles.append((i, j))
