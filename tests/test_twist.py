@@ -22,6 +22,23 @@ def test_p_axis_is_plane_normal():
     assert np.allclose(np.abs(p_axis(c, nb[:2])), [0, 0, 1], atol=1e-12)
     assert p_axis(c, nb[:1]) is None  # one neighbour: undefined
     assert p_axis(c, np.array([[1.0, 0, 0], [-1.0, 0, 0]])) is None  # linear (nitrile, alkyne)
+    # an alkyne carbon bent 3 degrees from straight (as MMFF leaves one): still no axis
+    bent = np.array([[1.2, 0, 0], [-1.46 * np.cos(np.radians(3)), 1.46 * np.sin(np.radians(3)), 0]])
+    assert p_axis(c, bent) is None
+    sp2 = np.array([[1.34, 0, 0], [1.46 * np.cos(np.radians(120)), 1.46 * np.sin(np.radians(120)), 0]])
+    assert np.allclose(np.abs(p_axis(c, sp2)), [0, 0, 1])
+
+
+def test_conformer_leaves_alkyne_untwisted():
+    """A conjugation-free alkyne (2 centres) gets factor 1 from a force-field conformer, as in the planar
+    model; before 2026-12-02 the few degrees by which MMFF bends the C-C#C angles gave the two carbons
+    arbitrary p axes (factor 0.58 and S1 8.20 -> 5.97 eV for this diol)."""
+    smi = "OC1(C#CC2(O)CCCC2)CCCC1"
+    (prep,) = prepare(mol_from_smiles(smi), Options(coordinates="conformer"))
+    assert np.all(prep.twist == 1.0)
+    a = ppp.compute(smi, n_triplets=0, n_singlets=1).singlets[0].energy_ev
+    b = ppp.compute(smi, coordinates="conformer", n_triplets=0, n_singlets=1).singlets[0].energy_ev
+    assert abs(a - b) < 1e-8
 
 
 def _tetramethylethylene(theta_deg: float, r_cc: float = 1.34) -> Chem.Mol:

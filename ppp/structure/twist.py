@@ -12,7 +12,8 @@ of an orbital axis is arbitrary, so the absolute value is taken.
 The p axis of a centre is the normal to the plane of its sigma neighbours (heavy atoms; hydrogens are not
 needed): for three neighbours the least-squares plane through them, for two the plane through the centre
 and both. A centre with one heavy neighbour, or collinear neighbours (nitrile, alkyne), has no defined
-axis; bonds to it keep the untwisted beta (factor 1).
+axis (nor has one whose two bonds are within 30 degrees of straight: an alkyne carbon a force field bent
+a little); bonds to it keep the untwisted beta (factor 1).
 
 A force field relaxes the one resonance structure it is given. Where a charge is delocalised (cyanines,
 triarylmethane and xanthene dyes, push-pull chromophores written with a separated charge), half of the
@@ -38,6 +39,10 @@ EMBED_TIMEOUT_S = 5
 #: Resonance structures enumerated at most (RDKit's own default is 1000; beyond this the bonds found
 #: so far are used, which can only leave fewer bonds untwisted).
 MAX_RESONANCE_STRUCTURES = 200
+#: A centre whose two bonds make an angle above 150 degrees (sine below 0.5) has no defined p axis: an
+#: sp centre (alkyne, cumulene) that a force field left a few degrees from straight; sp2 angles are
+#: 105-135 degrees.
+_SIN_STRAIGHT = 0.5
 #: Below this |cross product| (A^2) two neighbour vectors count as collinear.
 _COLLINEAR = 1e-3
 
@@ -52,9 +57,14 @@ def p_axis(centre: np.ndarray, neighbours: np.ndarray) -> np.ndarray | None:
             return None
         return vt[2] / np.linalg.norm(vt[2])
     if len(neighbours) == 2:
-        n = np.cross(neighbours[0] - centre, neighbours[1] - centre)
+        a, b = neighbours[0] - centre, neighbours[1] - centre
+        n = np.cross(a, b)
         norm = np.linalg.norm(n)
-        return None if norm < _COLLINEAR else n / norm
+        # an sp centre (alkyne, nitrile N, cumulene) bent by a force field by a few degrees still has no
+        # plane: the axis of such a near-straight angle would point anywhere
+        if norm < _COLLINEAR or norm < _SIN_STRAIGHT * np.linalg.norm(a) * np.linalg.norm(b):
+            return None
+        return n / norm
     return None
 
 
