@@ -26,7 +26,7 @@ from .solvers import scf as scf_solver
 from .solvers import stability
 from .solvers.guess import atomic_start, kekule_guess
 from .solvers.threads import blas_threads
-from .structure.geometry import atom_positions, centre_coordinates
+from .structure.geometry import atom_positions, centre_coordinates, layout_warning, planar_layout
 from .structure.perceive import PiSystem, perceive
 from .structure.cavity import cavity_spheres
 from .structure.twist import embed_conformer, resonance_variable_bonds, twist_factors
@@ -379,6 +379,8 @@ class Prepared:
     cavity: np.ndarray | None = None
     #: (N, N) Kekule-structure SCF start density (:func:`kekule_guess`), None when there is none
     kekule: np.ndarray | None = None
+    #: conditions of the placement the user must know about (a distorted 2D layout)
+    warnings: tuple[str, ...] = ()
 
 
 def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | None = None,
@@ -419,20 +421,28 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
     source = "depiction" if options.coordinates == "conformer" else options.coordinates
     all_bonds = np.concatenate([s.atom_indices[s.bonds] for s in systems]).reshape(-1, 2)
     out = []
-    positions = None  # atom positions, made once and shared by the chromophores
+    with maybe_stage(timer, "coordinates"):
+        # atom positions, made once and shared by the chromophores; a 2D layout is checked for
+        # distortion (structure/geometry.py: planar_layout)
+        chrom = [(s.atom_indices, s.bonds) for s in systems]
+        if source == "depiction":
+            pos2d, note = planar_layout(work, chrom)
+            positions = (pos2d, False)
+        else:
+            positions = atom_positions(work, source)
+            note = None if positions[1] else layout_warning(work, positions[0], chrom)
+    notes = () if note is None else (note,)
     for sys_ in systems:
         with maybe_stage(timer, "coordinates"):
-            if positions is None:
-                positions = atom_positions(work, source)
             coords = centre_coordinates(work, sys_.atom_indices, sys_.bonds, bond_length, source,
                                         all_pi_bonds=all_bonds, positions=positions)
             twist = (twist_factors(geo, pos, sys_.atom_indices, sys_.bonds, untwisted)
                      if (is3d and options.twist) else None)
-            cav = (cavity_spheres(work, sys_.atom_indices, coords, source, bond_length, all_bonds)
-                   if with_cavity else None)
+            cav = (cavity_spheres(work, sys_.atom_indices, coords, source, bond_length, all_bonds,
+                                  positions=positions) if with_cavity else None)
         with maybe_stage(timer, "perception"):
             kekule = kekule_guess(work, sys_)
-        out.append(Prepared(sys_, coords, twist, cav, kekule))
+        out.append(Prepared(sys_, coords, twist, cav, kekule, notes))
     return tuple(out)
 
 
@@ -550,11 +560,13 @@ def compute(structure: str | Chem.Mol, name: str | None = None, options: Options
         with maybe_stage(timer, "parameters"):
             pset = load_parameters(opts.parameters)
         chroms = []
+        notes = list(metal_warnings(mol))
         for k, (prep, model) in enumerate(_prepared_models(mol, opts, timer, pset)):
+            notes.extend(w for w in prep.warnings if w not in notes)
             chroms.append(solve_model(model, opts, index=k, atom_indices=prep.system.atom_indices, timer=timer,
                                       dens_guess=prep.kekule))
     except PPPError as err:
         raise err.with_molecule(label)
     return MoleculeResult(name=label, smiles=smiles_in, canonical_smiles=canonical, parameters=pset.name,
                           parameters_sha256=pset.sha256, options=opts, chromophores=tuple(chroms),
-                          molecule_warnings=metal_warnings(mol))
+                          molecule_warnings=tuple(notes))

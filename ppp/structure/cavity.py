@@ -81,15 +81,19 @@ def _hydrogen_directions(pos: np.ndarray, atom, normal: np.ndarray) -> list[np.n
 
 
 def cavity_spheres(mol: Chem.Mol, atom_indices: np.ndarray, centre_coords: np.ndarray, source: str,
-                   bond_length: float, all_pi_bonds: np.ndarray | None = None) -> np.ndarray:
+                   bond_length: float, all_pi_bonds: np.ndarray | None = None,
+                   positions: tuple[np.ndarray, bool] | None = None) -> np.ndarray:
     """(K, 4) rows [x, y, z, radius] (A) of the atoms other than the chromophore's pi-centres.
 
     mol : the heavy-atom molecule the centres were perceived in;  atom_indices : (N,) the centres
     centre_coords : (N, 3) their coordinates as placed (principal-axis frame);  source : "depiction"
-    or "input";  bond_length, all_pi_bonds : as for :func:`ppp.structure.geometry.centre_coordinates`
+    or "input";  bond_length, all_pi_bonds, positions : as for
+    :func:`ppp.structure.geometry.centre_coordinates` (the same layout as the centres')
     """
     atom_indices = np.asarray(atom_indices, dtype=int)
-    if source == "input" and mol.GetNumConformers():
+    if positions is not None:
+        pos, is3d = positions
+    elif source == "input" and mol.GetNumConformers():
         pos, is3d = input_coordinates(mol)
     else:
         pos, is3d = depiction(mol), False
