@@ -59,7 +59,7 @@ def main(argv: list[str] | None = None) -> int:
         if args.traceback:
             raise
         print(f"internal error (a bug in ppp, please report it with --traceback output): "
-              f"{type(exc).__name__}: {exc}", file=sys.stderr)
+              f"{type(exc).__name__}: {' '.join(str(exc).split())}", file=sys.stderr)
         return 3
 
 

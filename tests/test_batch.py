@@ -249,3 +249,23 @@ def test_cli_batch_refuses_a_foreign_file_without_overwrite(tmp_path, cli):
     code, _, err = cli("batch", inp, "-o", out, "--jobs", "1")
     assert code == 1 and err.startswith("error:") and "not an HDF5 file" in err and "--overwrite" in err
     assert len(err.strip().splitlines()) == 1
+
+
+def test_unexpected_library_error_is_one_line_in_the_store(monkeypatch):
+    """An exception that is not ppp's own (a bug, or a library failure nobody foresaw) is recorded as
+    kind 'internal' with a one-line message, however many lines the library's message had (RDKit's
+    invariant violations span five; found with RDKit's NCI test set, 2026-12-02); the rest of the chunk
+    goes on."""
+    from ppp.batch import worker
+
+    def broken(mol, name=None, options=None):
+        if mol.GetNumAtoms() == 2:
+            raise RuntimeError("Invariant Violation\n\tbad lower bound\n\tViolation occurred on line 204")
+        return ppp.compute(mol, name=name, options=options)
+
+    monkeypatch.setattr(worker, "compute", broken)
+    res = worker.compute_chunk([(0, 1, "", "C=C", "smiles", ""), (1, 2, "", "C=CC=C", "smiles", "")],
+                               ppp.Options(), ppp.model.params.load().sha256)
+    assert res.error_kind == ["internal", ""]
+    msg = res.error_message[0]
+    assert "\n" not in msg and "\t" not in msg and "bad lower bound" in msg

@@ -268,3 +268,12 @@ def test_conformer_leaves_delocalised_charge_path_untwisted():
                and {mol.GetAtomWithIdx(int(i)).GetIsAromatic(), mol.GetAtomWithIdx(int(j)).GetIsAromatic()} == {True}
                and mol.GetAtomWithIdx(int(i)).GetDegree() == 3 and mol.GetAtomWithIdx(int(j)).GetDegree() == 3]
     assert pendant and prep.twist[pendant].min() < 0.7
+
+
+def test_conformer_of_a_structure_rdkit_cannot_embed_is_one_line_input_error():
+    """RDKit's distance geometry stops with an invariant violation ("bad lower bound") on some metal
+    chelates (a zinc salen complex from RDKit's NCI test set; found 2026-12-02): an InputError naming
+    the reason, not an internal error with RDKit's five-line message."""
+    with pytest.raises(InputError, match="3D conformer embedding failed") as info:
+        ppp.compute("C1C[N+]2=CC3=CC=CC=C3O[Zn]24OC5=CC=CC=C5C=[N+]14", coordinates="conformer")
+    assert "\n" not in str(info.value)

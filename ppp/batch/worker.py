@@ -260,7 +260,8 @@ def compute_chunk(items, options: Options, parameters_sha256: str, heavy: bool =
         except PPPError as err:
             err_kind, err_msg = err.kind, f"{where}: {err.reason}"
         except Exception as exc:  # a bug in ppp; recorded so that the batch goes on
-            err_kind, err_msg = "internal", f"{where}: internal error {type(exc).__name__}: {exc}"
+            text = " ".join(str(exc).split())  # one line, whatever the library's message looks like
+            err_kind, err_msg = "internal", f"{where}: internal error {type(exc).__name__}: {text}"
         if not key:
             key = smiles_key(canonical) if canonical else raw_key(payload)
         res.key.append(key)

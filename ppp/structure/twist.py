@@ -144,25 +144,35 @@ def embed_conformer(mol: Chem.Mol, seed: int = 42, n_conformers: int = N_CONFORM
     params = AllChem.ETKDGv3()
     params.randomSeed = int(seed)
     params.timeout = EMBED_TIMEOUT_S
-    cids = [c for c in AllChem.EmbedMultipleConfs(work, int(n_conformers), params) if c >= 0]
-    if not cids:
-        # long all-E polyenes (carotenoids) fail ETKDG's chirality check; embed without it and verify
-        # below that every specified double bond kept its E/Z configuration
-        params.enforceChirality = False
+    try:
         cids = [c for c in AllChem.EmbedMultipleConfs(work, int(n_conformers), params) if c >= 0]
         if not cids:
-            work.RemoveAllConformers()
-            cids = [c for c in [AllChem.EmbedMolecule(work, params)] if c >= 0]
-        if not cids:
-            raise InputError("3D conformer embedding failed (RDKit ETKDG)")
-    if rdForceFieldHelpers.MMFFHasAllMoleculeParams(work):
-        res = rdForceFieldHelpers.MMFFOptimizeMoleculeConfs(work, maxIters=2000)
-        field = "MMFF94"
-    elif rdForceFieldHelpers.UFFHasAllMoleculeParams(work):
-        res = rdForceFieldHelpers.UFFOptimizeMoleculeConfs(work, maxIters=2000)
-        field = "UFF"
-    else:
-        raise InputError("no force field covers every atom; cannot relax a 3D conformer")
+            # long all-E polyenes (carotenoids) fail ETKDG's chirality check; embed without it and verify
+            # below that every specified double bond kept its E/Z configuration
+            params.enforceChirality = False
+            cids = [c for c in AllChem.EmbedMultipleConfs(work, int(n_conformers), params) if c >= 0]
+            if not cids:
+                work.RemoveAllConformers()
+                cids = [c for c in [AllChem.EmbedMolecule(work, params)] if c >= 0]
+    except RuntimeError as exc:
+        # RDKit's distance-geometry bounds can fail outright on metal chelates ("Invariant Violation ...
+        # bad lower bound"): a structure it cannot embed, not a bug here
+        detail = next((ln.strip() for ln in str(exc).splitlines()[1:] if ln.strip()), str(exc).strip())
+        raise InputError(f"3D conformer embedding failed (RDKit ETKDG: {detail})") from None
+    if not cids:
+        raise InputError("3D conformer embedding failed (RDKit ETKDG)")
+    try:
+        if rdForceFieldHelpers.MMFFHasAllMoleculeParams(work):
+            res = rdForceFieldHelpers.MMFFOptimizeMoleculeConfs(work, maxIters=2000)
+            field = "MMFF94"
+        elif rdForceFieldHelpers.UFFHasAllMoleculeParams(work):
+            res = rdForceFieldHelpers.UFFOptimizeMoleculeConfs(work, maxIters=2000)
+            field = "UFF"
+        else:
+            raise InputError("no force field covers every atom; cannot relax a 3D conformer")
+    except RuntimeError as exc:
+        detail = " ".join(str(exc).split())
+        raise InputError(f"force-field relaxation of the 3D conformer failed (RDKit: {detail})") from None
     energies = [e for _, e in res]
     best = cids[int(np.argmin(energies))]
     out = Chem.Mol(work, confId=best)
