@@ -146,3 +146,21 @@ def test_relaxed_layout_keeps_double_bond_sides():
     cis, _ = _layout("c1ccccc1/C=C\\c1ccccc1")
     assert _same_double_bond_sides(trans, depiction(trans), depiction(trans))
     assert not _same_double_bond_sides(trans, depiction(trans), depiction(cis))
+
+
+def test_distorted_input_drawing_is_used_as_drawn_with_a_warning(tmp_path):
+    """With --input-coordinates a 2D drawing from the file is the user's geometry: used as drawn, but a
+    distorted one (RDKit's own drawing of fluorescein, carboxyl C-O at 0.54) is reported."""
+    from rdkit.Chem import rdDepictor
+    mol = Chem.MolFromSmiles("[O-]C(=O)c1ccccc1-c1c2ccc(=O)cc-2oc2cc([O-])ccc12")
+    previous = rdDepictor.GetPreferCoordGen()
+    rdDepictor.SetPreferCoordGen(False)
+    try:
+        rdDepictor.Compute2DCoords(mol)
+    finally:
+        rdDepictor.SetPreferCoordGen(previous)
+    res = ppp.compute(mol, coordinates="input", n_triplets=0, n_singlets=1)
+    note = [w for w in res.warnings if "2D layout" in w]
+    assert len(note) == 1 and "atom 2 (C) and atom 3 (O)" in note[0] and "in the file" in note[0]
+    assert not [w for w in ppp.compute(Chem.MolToSmiles(mol), n_triplets=0, n_singlets=1).warnings
+                if "2D layout" in w]

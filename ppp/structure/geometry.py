@@ -194,10 +194,14 @@ def layout_warning(mol: Chem.Mol, pos: np.ndarray, chromophores) -> str | None:
     """The warning of :func:`planar_layout` for a given 2D layout (a drawing from an input file, used as
     drawn), or None when it is regular."""
     dev, contact, pair = layout_distortion(pos, chromophores)
-    return None if _badness(dev, contact) == 0.0 else _distortion_warning(mol, dev, contact, pair)
+    if _badness(dev, contact) == 0.0:
+        return None
+    return _distortion_warning(mol, dev, contact, pair,
+                               hint="a regular 2D drawing or 3D coordinates in the file avoid it")
 
 
-def _distortion_warning(mol: Chem.Mol, dev: float, contact: float, pair: tuple[int, int]) -> str:
+def _distortion_warning(mol: Chem.Mol, dev: float, contact: float, pair: tuple[int, int],
+                        hint: str = "coordinates from a MOL/SDF file (--input-coordinates) avoid it") -> str:
     """One line describing a distorted 2D layout of the pi-centres."""
     if dev > BOND_TOLERANCE:
         i, j = pair
@@ -206,7 +210,7 @@ def _distortion_warning(mol: Chem.Mol, dev: float, contact: float, pair: tuple[i
     else:
         what = f"two unbonded centres are drawn {contact:.2f} bond lengths apart"
     return (f"the 2D layout of the pi-system is distorted ({what}): repulsion integrals and transition dipoles "
-            f"near it are approximate; coordinates from a MOL/SDF file (--input-coordinates) avoid it")
+            f"near it are approximate; {hint}")
 
 
 def input_coordinates(mol: Chem.Mol) -> tuple[np.ndarray, bool]:
