@@ -21,6 +21,9 @@ from ..errors import InputError
 BOND_TOLERANCE = 0.15
 #: ... and no two non-bonded centres of one chromophore are closer than this fraction of it.
 MIN_CONTACT = 0.7
+#: Largest molecule (heavy atoms) whose drawing :func:`relax_layout` relaxes: its repulsion term is
+#: O(n^2) per step, about a second at this size; beyond it a distorted drawing keeps its warning.
+MAX_RELAX_ATOMS = 400
 
 
 def depiction(mol: Chem.Mol, coordgen: bool = False) -> np.ndarray:
@@ -174,7 +177,7 @@ def planar_layout(mol: Chem.Mol, chromophores) -> tuple[np.ndarray, str | None]:
     fluorescein's pendant ring at 0.54 of the standard length), bridged polycycles can place two bonded
     centres 0.1 bond lengths apart, and macrocycles (porphyrins) get stretched bonds. Then the CoordGen
     layout is tried, and if that is not regular either, RDKit's drawing relaxed to equal bond lengths
-    (:func:`relax_layout`); the first of them that is regular and draws every acyclic double bond with the
+    (:func:`relax_layout`, up to :data:`MAX_RELAX_ATOMS` atoms); the first of them that is regular and draws every acyclic double bond with the
     same E/Z is used. If neither is, RDKit's drawing is kept (an inherently non-planar graph such as a
     helicene cannot be drawn regularly) and the returned warning names the worst bond: gamma and the
     transition dipoles of that region are then approximate.
@@ -183,7 +186,10 @@ def planar_layout(mol: Chem.Mol, chromophores) -> tuple[np.ndarray, str | None]:
     dev, contact, pair = layout_distortion(pos, chromophores)
     if _badness(dev, contact) == 0.0:
         return pos, None
-    for make in (lambda: depiction(mol, coordgen=True), lambda: relax_layout(mol, pos)):
+    makers = [lambda: depiction(mol, coordgen=True)]
+    if mol.GetNumAtoms() <= MAX_RELAX_ATOMS:
+        makers.append(lambda: relax_layout(mol, pos))
+    for make in makers:
         alt = make()
         if _badness(*layout_distortion(alt, chromophores)[:2]) == 0.0 and _same_double_bond_sides(mol, pos, alt):
             return alt, None
