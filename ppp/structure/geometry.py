@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 from rdkit import Chem, rdBase
-from rdkit.Chem import rdDepictor
+from rdkit.Chem import rdCoordGen, rdDepictor
 
 from ..errors import InputError
 
@@ -29,16 +29,21 @@ MAX_RELAX_ATOMS = 400
 def depiction(mol: Chem.Mol, coordgen: bool = False) -> np.ndarray:
     """2D depiction coordinates of all atoms, (n_atoms, 3), RDKit units (bond ~1.5), z = 0.
 
-    RDKit's own depiction algorithm, or with ``coordgen`` its CoordGen alternative. RDKit keeps a
-    process-wide switch between the two, which other code (drawing) may turn; results must not depend
-    on it, so the switch is set for this call and restored afterwards.
+    RDKit's own depiction algorithm, or with ``coordgen`` its CoordGen alternative (called directly, so
+    that the process-wide preference switch is never turned on: threads of one process may depict at the
+    same time). RDKit's switch may have been turned by other code (drawing); results must not depend on
+    it, so it is set off for the call and restored afterwards.
     """
     work = Chem.Mol(mol)
+    if coordgen:
+        work.RemoveAllConformers()
+        with rdBase.BlockLogs():  # CoordGen writes notes to stderr
+            rdCoordGen.AddCoords(work)
+        return np.asarray(work.GetConformer().GetPositions(), dtype=float)
     previous = rdDepictor.GetPreferCoordGen()
     try:
-        rdDepictor.SetPreferCoordGen(bool(coordgen))
-        with rdBase.BlockLogs():  # CoordGen writes notes to stderr
-            rdDepictor.Compute2DCoords(work, clearConfs=True)
+        rdDepictor.SetPreferCoordGen(False)
+        rdDepictor.Compute2DCoords(work, clearConfs=True)
     finally:
         rdDepictor.SetPreferCoordGen(previous)
     return np.asarray(work.GetConformer().GetPositions(), dtype=float)
