@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 from rdkit import Chem, rdBase
 from rdkit.Chem import rdCoordGen, rdDepictor
+from scipy.spatial import cKDTree
 
 from ..errors import InputError
 
@@ -21,6 +22,9 @@ from ..errors import InputError
 BOND_TOLERANCE = 0.15
 #: ... and no two non-bonded centres of one chromophore are closer than this fraction of it.
 MIN_CONTACT = 0.7
+#: Non-bonded pairs are looked for within this many mean bond lengths (a k-d tree, so the check stays
+#: O(N log N) at 1,000 centres).
+CONTACT_RANGE = 1.5
 #: Largest molecule (heavy atoms) whose drawing :func:`relax_layout` relaxes: its repulsion term is
 #: O(n^2) per step, about a second at this size; beyond it a distorted drawing keeps its warning.
 MAX_RELAX_ATOMS = 400
@@ -54,7 +58,8 @@ def layout_distortion(pos: np.ndarray, chromophores) -> tuple[float, float, tupl
 
     chromophores : sequence of (atom_indices (N,), bonds (M, 2) local index pairs)
     Returns the largest |L / L_mean - 1| over the pi bonds, the closest distance / L_mean between two
-    non-bonded centres of one chromophore, and the RDKit atom indices of the worst bond.
+    non-bonded centres of one chromophore (inf when none is within :data:`CONTACT_RANGE`), and the RDKit
+    atom indices of the worst bond.
     """
     pairs = [np.asarray(idx)[np.asarray(b, dtype=int).reshape(-1, 2)] for idx, b in chromophores]
     pairs = np.concatenate(pairs) if pairs else np.zeros((0, 2), dtype=int)
@@ -66,17 +71,21 @@ def layout_distortion(pos: np.ndarray, chromophores) -> tuple[float, float, tupl
         return np.inf, 0.0, tuple(int(x) for x in pairs[0])
     dev = np.abs(lengths / mean - 1.0)
     worst = int(np.argmax(dev))
-    contact = np.inf
+    contact = np.inf  # closest non-bonded pair within CONTACT_RANGE bond lengths; inf if none is
     for idx, b in chromophores:
         idx = np.asarray(idx, dtype=int)
         if len(idx) < 3:
             continue
-        p = pos[idx]
-        d = np.sqrt(((p[:, None, :] - p[None, :, :]) ** 2).sum(axis=-1))
-        d[np.diag_indices_from(d)] = np.inf
+        close = cKDTree(pos[idx]).query_pairs(CONTACT_RANGE * mean, output_type="ndarray")
+        if not len(close):
+            continue
         b = np.asarray(b, dtype=int).reshape(-1, 2)
-        d[b[:, 0], b[:, 1]] = d[b[:, 1], b[:, 0]] = np.inf
-        contact = min(contact, float(d.min()) / mean)
+        bonded = set(zip(b.min(axis=1).tolist(), b.max(axis=1).tolist()))
+        keep = [k for k, (i, j) in enumerate(close.tolist()) if (min(i, j), max(i, j)) not in bonded]
+        if keep:
+            close = close[keep]
+            d = np.linalg.norm(pos[idx[close[:, 0]]] - pos[idx[close[:, 1]]], axis=1)
+            contact = min(contact, float(d.min()) / mean)
     return float(dev[worst]), contact, (int(pairs[worst, 0]), int(pairs[worst, 1]))
 
 
