@@ -25,10 +25,12 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..errors import InputError
+from ..results import BRIGHT_F
 from ..units import ev_to_nm, nm_to_ev
 
-#: Oscillator strength above which a singlet counts as an observable ("allowed") band.
-ALLOWED_F = 0.05
+#: Oscillator strength from which a singlet counts as an observable ("allowed") band: the one threshold
+#: of the output's first allowed band (``ppp.results.BRIGHT_F``).
+ALLOWED_F = BRIGHT_F
 #: Singlets computed per chromophore when matching bands.
 N_SINGLETS = 8
 MATCH_RULES = ("allowed", "S1", "S2")

@@ -97,7 +97,7 @@ def add_arguments(p) -> None:
     p.add_argument("--pictures", action="store_true",
                    help="also draw HOMO, LUMO, transition density, charge change and the orbital level diagram")
     p.add_argument("--state", type=int, metavar="N",
-                   help="singlet S<N> for the transition pictures (default: first with f >= 0.01)")
+                   help="singlet S<N> for the transition pictures (default: the first allowed band, f >= 0.05)")
     p.add_argument("--json", action="store_true", help="print a JSON summary instead of text")
     add_band_arguments(p)
     add_sample_arguments(p, perceived.DEFAULT_CONCENTRATION_M)
@@ -187,7 +187,8 @@ def _plan_pictures(src: sources.SpectrumSource, state: int | None, prefix: str):
     # the state: S<N> counted over all singlets sorted by energy, as in the sticks
     labels = src.sticks.labels
     if state is None:
-        bright = [k for k, f in enumerate(src.sticks.f) if f >= 0.01]
+        from ..results import BRIGHT_F
+        bright = [k for k, f in enumerate(src.sticks.f) if f >= BRIGHT_F]
         k_state = bright[0] if bright else 0
     else:
         if not 1 <= state <= len(labels):
