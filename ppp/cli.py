@@ -11,7 +11,7 @@ import signal
 import sys
 
 from . import __version__
-from .errors import PPPError
+from .errors import PPPError, one_line
 
 #: Subcommand modules, in the order ``ppp --help`` lists them.
 COMMANDS = ["run", "batch", "demo", "export", "merge", "salvage", "spectrum", "compare", "fit", "parameters"]
@@ -59,7 +59,7 @@ def main(argv: list[str] | None = None) -> int:
         if args.traceback:
             raise
         print(f"internal error (a bug in ppp, please report it with --traceback output): "
-              f"{type(exc).__name__}: {' '.join(str(exc).split())}", file=sys.stderr)
+              f"{type(exc).__name__}: {one_line(exc)}", file=sys.stderr)
         return 3
 
 

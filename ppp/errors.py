@@ -6,6 +6,12 @@ full trace. Anything else escaping to the user is a bug.
 from __future__ import annotations
 
 
+def one_line(text: object) -> str:
+    """A message on one line: a library's multi-line text (RDKit's invariant violations span five) with
+    its line breaks and runs of white space turned into single spaces."""
+    return " ".join(str(text).split())
+
+
 class PPPError(Exception):
     """Base class. ``molecule`` names the input (label or SMILES) when known; ``kind`` is a stable
     machine-readable reason tag used by batch records."""

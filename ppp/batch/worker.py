@@ -26,7 +26,7 @@ import numpy as np
 from rdkit import Chem, rdBase
 
 from ..driver import Options, compute
-from ..errors import ParseError, PPPError
+from ..errors import ParseError, PPPError, one_line
 from ..model import params as param_registry
 from ..structure.readers import _sanitize, mol_from_smiles
 from .schema import SUMMARY_FLOATS, join_warnings
@@ -260,8 +260,7 @@ def compute_chunk(items, options: Options, parameters_sha256: str, heavy: bool =
         except PPPError as err:
             err_kind, err_msg = err.kind, f"{where}: {err.reason}"
         except Exception as exc:  # a bug in ppp; recorded so that the batch goes on
-            text = " ".join(str(exc).split())  # one line, whatever the library's message looks like
-            err_kind, err_msg = "internal", f"{where}: internal error {type(exc).__name__}: {text}"
+            err_kind, err_msg = "internal", f"{where}: internal error {type(exc).__name__}: {one_line(exc)}"
         if not key:
             key = smiles_key(canonical) if canonical else raw_key(payload)
         res.key.append(key)

@@ -44,6 +44,7 @@ from ..errors import (NoPiSystemError, OpenShellError, ParseError, RadicalError,
 _MULTIPLE_BOND_ELEMENTS = {"C", "N", "O", "B", "S"}
 #: Elements whose hypervalent multiple bonds (S=O in sulfones, P=O, As=O in arsonates) are
 #: non-conjugating groups, with the element's normal valence (a positive charge adds one: R2S+=C).
+#: P is given 0: every multiple bond to P counts as non-conjugating (phosphonate, phosphine oxide).
 _NON_CONJUGATING_CENTRES = {"S": 2, "P": 0, "As": 3}
 _HALOGENS = {"F", "Cl", "Br", "I"}
 
@@ -186,13 +187,10 @@ def perceive(mol: Chem.Mol) -> tuple[PiSystem, ...]:
     nsig = [len(nb) + a.GetTotalNumHs() for nb, a in zip(neighbours, all_atoms)]
 
     def hypervalent(i: int) -> bool:
-        # more bonds than the normal valence (S 2, As 3; +1 for a positive charge); P=X always (phosphonate,
-        # phosphine oxide, phosphate). A thionium S+ (two sigma bonds and a double bond) is not hypervalent.
+        # more bonds than the normal valence (+1 for a positive charge): a thionium S+ (two sigma bonds and
+        # a double bond, valence 3) is not hypervalent, a sulfone or sulfoxide S (4 or 6) is
         normal = _NON_CONJUGATING_CENTRES.get(sym[i])
-        if normal is None:
-            return False
-        return (sym[i] == "P" or (sym[i] == "S" and nsig[i] > 2)
-                or all_atoms[i].GetTotalValence() > normal + max(charge[i], 0))
+        return normal is not None and all_atoms[i].GetTotalValence() > normal + max(charge[i], 0)
 
     multiple = (Chem.BondType.DOUBLE, Chem.BondType.TRIPLE)
     unsaturated = [False] * n_atoms

@@ -30,7 +30,7 @@ from rdkit import Chem
 from rdkit.Chem import AllChem
 from rdkit.Chem import rdForceFieldHelpers
 
-from ..errors import InputError
+from ..errors import InputError, one_line
 
 #: Conformers embedded and relaxed; the lowest force-field energy is kept.
 N_CONFORMERS = 8
@@ -90,7 +90,7 @@ def resonance_variable_bonds(mol: Chem.Mol) -> set[frozenset[int]]:
                 if not bond.IsInRing():
                     orders.setdefault(bond.GetIdx(), set()).add(bond.GetBondTypeAsDouble())
     except (RuntimeError, ValueError) as exc:
-        raise InputError(f"resonance structures for the conformer's twist angles failed (RDKit): {exc}") from exc
+        raise InputError(f"resonance structures for the conformer's twist angles failed (RDKit: {one_line(exc)})") from None
     out = set()
     for idx, seen in orders.items():
         if len(seen) > 1:
@@ -171,8 +171,7 @@ def embed_conformer(mol: Chem.Mol, seed: int = 42, n_conformers: int = N_CONFORM
         else:
             raise InputError("no force field covers every atom; cannot relax a 3D conformer")
     except RuntimeError as exc:
-        detail = " ".join(str(exc).split())
-        raise InputError(f"force-field relaxation of the 3D conformer failed (RDKit: {detail})") from None
+        raise InputError(f"force-field relaxation of the 3D conformer failed (RDKit: {one_line(exc)})") from None
     energies = [e for _, e in res]
     best = cids[int(np.argmin(energies))]
     out = Chem.Mol(work, confId=best)
