@@ -25,6 +25,8 @@ MIN_CONTACT = 0.7
 #: Non-bonded pairs are looked for within this many mean bond lengths (a k-d tree, so the check stays
 #: O(N log N) at 1,000 centres).
 CONTACT_RANGE = 1.5
+#: Up to this many centres a chromophore's contacts come from all its distances at once, above from a tree.
+_DENSE_CONTACTS = 150
 #: Largest molecule (heavy atoms) whose drawing :func:`relax_layout` relaxes: its repulsion term is
 #: O(n^2) per step, about a second at this size; beyond it a distorted drawing keeps its warning.
 MAX_RELAX_ATOMS = 400
@@ -76,15 +78,25 @@ def layout_distortion(pos: np.ndarray, chromophores) -> tuple[float, float, tupl
         idx = np.asarray(idx, dtype=int)
         if len(idx) < 3:
             continue
-        close = cKDTree(pos[idx]).query_pairs(CONTACT_RANGE * mean, output_type="ndarray")
+        b = np.asarray(b, dtype=int).reshape(-1, 2)
+        p = pos[idx, :2]
+        if len(idx) <= _DENSE_CONTACTS:  # small: all distances at once is cheaper than a tree
+            diff = p[:, None, :] - p[None, :, :]
+            d = np.sqrt((diff * diff).sum(axis=-1))
+            d[np.diag_indices_from(d)] = np.inf
+            d[b[:, 0], b[:, 1]] = d[b[:, 1], b[:, 0]] = np.inf
+            nearest = float(d.min())
+            if nearest < CONTACT_RANGE * mean:
+                contact = min(contact, nearest / mean)
+            continue
+        close = cKDTree(p).query_pairs(CONTACT_RANGE * mean, output_type="ndarray")
         if not len(close):
             continue
-        b = np.asarray(b, dtype=int).reshape(-1, 2)
         bonded = set(zip(b.min(axis=1).tolist(), b.max(axis=1).tolist()))
         keep = [k for k, (i, j) in enumerate(close.tolist()) if (min(i, j), max(i, j)) not in bonded]
         if keep:
             close = close[keep]
-            d = np.linalg.norm(pos[idx[close[:, 0]]] - pos[idx[close[:, 1]]], axis=1)
+            d = np.linalg.norm(p[close[:, 0]] - p[close[:, 1]], axis=1)
             contact = min(contact, float(d.min()) / mean)
     return float(dev[worst]), contact, (int(pairs[worst, 0]), int(pairs[worst, 1]))
 
