@@ -277,3 +277,12 @@ def test_conformer_of_a_structure_rdkit_cannot_embed_is_one_line_input_error():
     with pytest.raises(InputError, match="3D conformer embedding failed") as info:
         ppp.compute("C1C[N+]2=CC3=CC=CC=C3O[Zn]24OC5=CC=CC=C5C=[N+]14", coordinates="conformer")
     assert "\n" not in str(info.value)
+
+
+def test_conformer_keeps_rdkit_log_off_stderr(capfd):
+    """RDKit's force-field typers print a line per metal atom they cannot type; a conformer batch over a
+    library with metal complexes repeated them for every molecule (seen on RDKit's NCI test set). The
+    user sees ppp's one-line error instead."""
+    with pytest.raises(InputError):
+        ppp.compute("CN(C)C[C-]12C3=C4C5=C1[Fe++]23456789[C-]%10C6=C7C8=C9%10", coordinates="conformer")
+    assert "UFFTYPER" not in capfd.readouterr().err

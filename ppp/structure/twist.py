@@ -26,7 +26,7 @@ acyclic bonds whose order differs between the molecule's resonance structures
 from __future__ import annotations
 
 import numpy as np
-from rdkit import Chem
+from rdkit import Chem, rdBase
 from rdkit.Chem import AllChem
 from rdkit.Chem import rdForceFieldHelpers
 
@@ -128,6 +128,14 @@ def twist_factors(mol: Chem.Mol, positions: np.ndarray, atom_indices: np.ndarray
 
 
 def embed_conformer(mol: Chem.Mol, seed: int = 42, n_conformers: int = N_CONFORMERS) -> tuple[Chem.Mol, str]:
+    """:func:`_embed_conformer` with RDKit's log silenced: its force-field typers print a line per atom
+    they cannot type (metal ions) to stderr, which a batch would repeat for every such molecule; what
+    matters reaches the user as ppp's own one-line error."""
+    with rdBase.BlockLogs():
+        return _embed_conformer(mol, seed, n_conformers)
+
+
+def _embed_conformer(mol: Chem.Mol, seed: int, n_conformers: int) -> tuple[Chem.Mol, str]:
     """The lowest-energy of ``n_conformers`` 3D conformers: RDKit ETKDG embeddings (Riniker & Landrum
     2015) each relaxed with MMFF94 (Halgren 1996), or UFF (Rappe et al. 1992) for atoms MMFF does not
     cover. Taking the force-field minimum over several starts is common practice; a single embedding
