@@ -128,3 +128,29 @@ def test_bad_options_are_one_line_errors(tmp_path, capsys):
         assert main(argv) == 1, argv
         err = capsys.readouterr().err.strip()
         assert len(err.splitlines()) == 1 and err.startswith("error: "), err
+
+
+def test_spectrum_and_compare_show_the_computation_warnings(tmp_path, capsys):
+    """A spectrum inherits its computation's warnings, fresh or from a saved record: [6]helicene cannot be
+    drawn flat without overlapping rings, and the spectrum must say so as `ppp run` does (before
+    2026-12-02 `spectrum` and `compare` dropped every warning)."""
+    helicene = "c1ccc2c(c1)ccc1ccc3ccc4ccc5ccccc5c4c3c12"
+    assert main(["spectrum", helicene, "--out", str(tmp_path / "a")]) == 0
+    assert "warning: the 2D layout of the pi-system is distorted" in capsys.readouterr().out
+    rec = tmp_path / "r.h5"
+    assert main(["run", helicene, "--save", str(rec)]) == 0
+    capsys.readouterr()
+    assert main(["spectrum", "--record", str(rec), "--out", str(tmp_path / "b"), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert len(doc["warnings"]) == 1 and "2D layout" in doc["warnings"][0]
+    assert main(["spectrum", DYE, "--out", str(tmp_path / "c"), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["warnings"] == []
+    sticks_doc = doc["sticks"]
+    wl = np.arange(250.0, 500.0, 1.0)
+    from ppp.spectra.lineshapes import Sticks
+    st = Sticks([s["energy_ev"] for s in sticks_doc], [s["f"] for s in sticks_doc])
+    meas = tmp_path / "m.csv"
+    a = 1e-5 * epsilon(HC_EV_NM / wl, st, LineShape("gaussian", 0.3))
+    meas.write_text("wavelength (nm),absorbance\n" + "\n".join(f"{x},{y:.8g}" for x, y in zip(wl, a)) + "\n")
+    assert main(["compare", helicene, "-m", str(meas), "--out", str(tmp_path / "d")]) == 0
+    assert "warning: the 2D layout of the pi-system is distorted" in capsys.readouterr().out

@@ -95,7 +95,7 @@ def main(args) -> int:
 
     doc = {"name": src.name, "measured": meas.source, "measured_quantity": meas.quantity,
            "fit": fit.to_dict(), "colour_measured": c_meas.to_dict(), "colour_fitted": c_fit.to_dict(),
-           "colour_sample": sample, "files": files}
+           "colour_sample": sample, "warnings": list(src.warnings), "files": files}
     from ..results import BRIGHT_F  # the output's and the accuracy benchmark's "allowed" threshold
     first = next((k for k, f in enumerate(src.sticks.f) if f >= BRIGHT_F), None)
     if first is not None:
@@ -119,6 +119,8 @@ def main(args) -> int:
     print(f"  band FWHM      {width}" + (" (fixed)" if args.fix_width else ""))
     print(f"  rms residual   {fit.rms:.4g}   similarity (Pearson r) {fit.before.pearson:.3f} as computed \u2192 "
           f"{fit.after.pearson:.3f} fitted; cosine {fit.before.cosine:.3f} \u2192 {fit.after.cosine:.3f}")
+    for w in src.warnings:
+        print(f"  warning: {w}")
     if fit.at_bounds:
         print(f"  warning: the fit stopped at the limit of {' and '.join(fit.at_bounds)} (shift within "
               f"\u00b1{fitting.SHIFT_BOUND_EV:g} eV, FWHM {fitting.WIDTH_BOUNDS_EV[0]:g}-{fitting.WIDTH_BOUNDS_EV[1]:g} eV): "

@@ -72,7 +72,7 @@ def source_from_args(args) -> sources.SpectrumSource:
     else:
         raise InputError("nothing to do: give a SMILES or --record FILE.h5")
     if args.name:
-        src = sources.SpectrumSource(args.name, src.smiles, src.sticks, src.chromophores)
+        src = sources.SpectrumSource(args.name, src.smiles, src.sticks, src.chromophores, src.warnings)
     return src
 
 
@@ -155,7 +155,7 @@ def main(args) -> int:
                "sticks": [{"state": lab, "energy_ev": float(e), "wavelength_nm": float(HC_EV_NM / e), "f": float(f)}
                           for lab, e, f in zip(src.sticks.labels, src.sticks.energy_ev, src.sticks.f)],
                "colour": {"concentration_M": args.concentration, "path_cm": args.path_length, **colour.to_dict()},
-               "files": files}
+               "warnings": list(src.warnings), "files": files}
         json.dump(doc, sys.stdout, indent=1)
         sys.stdout.write("\n")
         return 0
@@ -169,6 +169,8 @@ def main(args) -> int:
         print(f"  no band maximum inside the window; the strongest computed band is {src.sticks.labels[k]} at "
               f"{HC_EV_NM / src.sticks.energy_ev[k]:.0f} nm (f = {src.sticks.f[k]:.3f}); widen it with --range")
     print(f"  colour at {sample}: {colour.describe()}")
+    for w in src.warnings:
+        print(f"  warning: {w}")
     for f in files.values():
         print(f"  wrote {f}")
     return 0

@@ -52,6 +52,8 @@ class SpectrumSource:
     smiles: str
     sticks: Sticks
     chromophores: tuple[ChromophoreOrbitals, ...] = ()
+    #: the computation's warnings (``MoleculeResult.warnings``), shown beside the spectrum
+    warnings: tuple[str, ...] = ()
 
 
 def _sticks_from(chroms: list[tuple[int, np.ndarray, np.ndarray]]) -> Sticks:
@@ -78,7 +80,21 @@ def from_result(res) -> SpectrumSource:
         m = c.model
         orbs.append(ChromophoreOrbitals(c.index, np.asarray(c.atom_indices), tuple(m.types), m.ip, m.u,
                                         c.scf.mo_energy, c.scf.mo_coeff, m.n_occ, e, f, c.singlet_amplitudes))
-    return SpectrumSource(res.name, res.smiles, _sticks_from(chroms), tuple(orbs))
+    return SpectrumSource(res.name, res.smiles, _sticks_from(chroms), tuple(orbs), tuple(res.warnings))
+
+
+def _stored_warnings(value, path) -> tuple[str, ...]:
+    """The ``warnings`` attribute of a record (a JSON list; absent in records written before it)."""
+    if value is None:
+        return ()
+    import json
+    try:
+        items = json.loads(value.decode() if isinstance(value, bytes) else str(value))
+    except ValueError:
+        items = None
+    if not isinstance(items, list):
+        raise StorageError(f"'{path}' is damaged: a molecule's warnings attribute is not a JSON list")
+    return tuple(str(w) for w in items)
 
 
 def from_arrays(name: str, energy_ev, oscillator_strength, labels=None, smiles: str = "") -> SpectrumSource:
@@ -156,9 +172,10 @@ def from_record(path: str | Path, molecule: str | None = None) -> SpectrumSource
                                                 s["mo_energy_ev"][()], s["mo_coeff"][()], n_occ, e, f,
                                                 st["singlet_amplitudes"][()]))
             name, smiles = str(g.attrs["name"]), str(g.attrs["smiles"])
+            warnings = _stored_warnings(g.attrs.get("warnings"), path)
         except KeyError as exc:
             raise StorageError(f"'{path}' is damaged or incomplete: {exc}") from None
     try:
-        return SpectrumSource(name, smiles, _sticks_from(chroms), tuple(orbs))
+        return SpectrumSource(name, smiles, _sticks_from(chroms), tuple(orbs), warnings)
     except InputError as err:
         raise err.with_molecule(name)
