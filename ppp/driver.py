@@ -438,8 +438,8 @@ def prepare(mol: Chem.Mol, options: Options = Options(), bond_length: float | No
                                         all_pi_bonds=all_bonds, positions=positions)
             twist = (twist_factors(geo, pos, sys_.atom_indices, sys_.bonds, untwisted)
                      if (is3d and options.twist) else None)
-            cav = (cavity_spheres(work, sys_.atom_indices, coords, source, bond_length, all_bonds,
-                                  positions=positions) if with_cavity else None)
+            cav = (cavity_spheres(work, sys_.atom_indices, coords, positions, bond_length, all_bonds)
+                   if with_cavity else None)
         with maybe_stage(timer, "perception"):
             kekule = kekule_guess(work, sys_)
         out.append(Prepared(sys_, coords, twist, cav, kekule, notes))

@@ -20,7 +20,7 @@ import numpy as np
 from rdkit import Chem
 
 from ..errors import ParameterError
-from .geometry import depiction, input_coordinates, scale_to_bond_length
+from .geometry import scale_to_bond_length
 
 #: van der Waals radii, A: Bondi, J. Phys. Chem. 68, 441 (1964); B from Mantina, Chamberlin, Valero,
 #: Cramer & Truhlar, J. Phys. Chem. A 113, 5806 (2009). From memory.
@@ -80,23 +80,19 @@ def _hydrogen_directions(pos: np.ndarray, atom, normal: np.ndarray) -> list[np.n
     return [math.cos(theta) * d0 + math.sin(theta) * ax for ax in axes[:h]]
 
 
-def cavity_spheres(mol: Chem.Mol, atom_indices: np.ndarray, centre_coords: np.ndarray, source: str,
-                   bond_length: float, all_pi_bonds: np.ndarray | None = None,
-                   positions: tuple[np.ndarray, bool] | None = None) -> np.ndarray:
+def cavity_spheres(mol: Chem.Mol, atom_indices: np.ndarray, centre_coords: np.ndarray,
+                   positions: tuple[np.ndarray, bool], bond_length: float,
+                   all_pi_bonds: np.ndarray | None = None) -> np.ndarray:
     """(K, 4) rows [x, y, z, radius] (A) of the atoms other than the chromophore's pi-centres.
 
     mol : the heavy-atom molecule the centres were perceived in;  atom_indices : (N,) the centres
-    centre_coords : (N, 3) their coordinates as placed (principal-axis frame);  source : "depiction"
-    or "input";  bond_length, all_pi_bonds, positions : as for
-    :func:`ppp.structure.geometry.centre_coordinates` (the same layout as the centres')
+    centre_coords : (N, 3) their coordinates as placed (principal-axis frame)
+    positions : (all atom positions, is 3D), the layout the centres were placed from
+        (:func:`ppp.structure.geometry.planar_layout` or the input's coordinates)
+    bond_length, all_pi_bonds : as for :func:`ppp.structure.geometry.centre_coordinates`
     """
     atom_indices = np.asarray(atom_indices, dtype=int)
-    if positions is not None:
-        pos, is3d = positions
-    elif source == "input" and mol.GetNumConformers():
-        pos, is3d = input_coordinates(mol)
-    else:
-        pos, is3d = depiction(mol), False
+    pos, is3d = positions
     if not is3d:
         ref = all_pi_bonds if all_pi_bonds is not None and len(all_pi_bonds) else np.zeros((0, 2), dtype=int)
         pos = scale_to_bond_length(pos, np.asarray(ref, dtype=int).reshape(-1, 2), bond_length)

@@ -316,9 +316,14 @@ def centre_coordinates(mol: Chem.Mol, atom_indices: np.ndarray, bonds: np.ndarra
     source : "depiction" (default) or "input"
     all_pi_bonds : optional (K, 2) global atom-index pairs of every pi bond in the molecule; when
         given, the scale is set from all of them so that separate chromophores share one scale.
-    positions : optional ``atom_positions(mol, source)``, when already computed for the molecule
+    positions : optional (all atom positions, is 3D), when already computed for the molecule (the driver
+        passes :func:`planar_layout`'s, checked against every chromophore); without it the depiction is
+        checked against this chromophore alone
     """
-    pos, is3d = atom_positions(mol, source) if positions is None else positions
+    if positions is None:
+        positions = ((planar_layout(mol, [(atom_indices, bonds)])[0], False) if source == "depiction"
+                     else atom_positions(mol, source))
+    pos, is3d = positions
     if not is3d:
         ref = all_pi_bonds if all_pi_bonds is not None and len(all_pi_bonds) else atom_indices[bonds]
         pos = scale_to_bond_length(pos, np.asarray(ref).reshape(-1, 2), bond_length)
