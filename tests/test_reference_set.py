@@ -82,6 +82,26 @@ def test_class_rules_on_textbook_cases(smiles, cls):
     assert classes.classify_smiles(smiles) == cls
 
 
+@pytest.mark.parametrize("smiles,cls", [
+    # imide N and ester O give their lone pair to the carbonyl groups: carbonyl dyes, not push-pull
+    # (perylene diimide and phthalimide; common practice in dye classification)
+    ("C1=CC2=C3C(=CC=C4C3=C1C5=C6C4=CC=C7C6=C(C=C5)C(=O)NC7=O)C(=O)NC2=O", "carbonyl"),
+    ("CN1C(=O)c2ccccc2C1=O", "carbonyl"), ("COC(=O)c1ccccc1", "carbonyl"),
+    # an amide N on a ring, and a lactam N on the pi-frame (diketopyrrolopyrrole), still donate
+    ("CC(=O)Nc1ccc(cc1)[N+](=O)[O-]", "push-pull"), ("O=C1NC(c2ccccc2)=C2C1=C(c1ccccc1)NC2=O", "push-pull"),
+])
+def test_class_rules_imides_and_esters_are_no_donors(smiles, cls):
+    assert classes.classify_smiles(smiles) == cls
+
+
+def test_class_rules_read_molecules_with_explicit_hydrogens():
+    # an SDF record keeps its hydrogens; the class must not depend on that (it fell to "other")
+    from rdkit import Chem
+    for smiles, cls in [("CN(C)c1ccc(C=O)cc1", "push-pull"), ("c1ccc2ccccc2c1", "benzenoid"),
+                        ("C=CC=CC=C", "polyene")]:
+        assert classes.classify(Chem.AddHs(Chem.MolFromSmiles(smiles))) == cls
+
+
 def test_band_uncertainty_conversion_and_fallback(tmp_path):
     text = params.load("classic").text.replace('name = "classic"', 'name = "u"').replace(
         "default = true", "default = false")

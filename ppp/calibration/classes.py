@@ -13,7 +13,10 @@ they follow the usual dye-chemistry grouping (common practice):
    pi-system with a C=C double bond outside rings (stilbenes, diphenylpolyenes)
 7. hydrocarbons: ``non-alternant`` if the pi graph has an odd ring (not bipartite), else ``benzenoid``
 8. ``push-pull``: a donor (amino N, hydroxy/ether O, phenolate O-) and an acceptor (nitro, cyano,
-   carbonyl) in one pi-system, unless the carbonyl is part of a quinone or indigoid
+   carbonyl) in one pi-system, unless the carbonyl is part of a quinone or indigoid. A donor must be
+   bonded to a pi-atom other than a carbonyl carbon: the N of an imide (rylene and naphthalene
+   diimides, phthalimides) and the O of an ester give their lone pair to the carbonyl groups, not to
+   the rest of the system, and do not make a push-pull dye
 9. ``carbonyl``: any conjugated C=O (quinones, anthraquinones, indigoids, aryl ketones and aldehydes)
 10. ``other``
 """
@@ -64,11 +67,34 @@ def _bipartite(n: int, bonds) -> bool:
     return True
 
 
+def _carbonyl_carbon(atom: Chem.Atom) -> bool:
+    """A carbon with a double bond to oxygen."""
+    return atom.GetSymbol() == "C" and any(
+        b.GetBondType() == Chem.BondType.DOUBLE and b.GetOtherAtom(atom).GetSymbol() == "O" for b in atom.GetBonds())
+
+
+def _has_donor(mol: Chem.Mol, sys_, in_pi: set[int]) -> bool:
+    """Rule 8's donor: an amino N, hydroxy/ether O or phenolate O- of the pi-system bonded to a pi-atom
+    that is not a carbonyl carbon (``mol`` is the hydrogen-free molecule the system was perceived on)."""
+    for idx, t in zip(sys_.atom_indices.tolist(), sys_.types):
+        a = mol.GetAtomWithIdx(idx)
+        phenolate = (a.GetSymbol() == "O" and a.GetFormalCharge() == -1 and a.GetDegree() == 1
+                     and a.GetNeighbors()[0].GetSymbol() != "N")
+        if (t in ("N.amino", "O.oxa") or phenolate) and any(
+                nb.GetIdx() in in_pi and not _carbonyl_carbon(nb) for nb in a.GetNeighbors()):
+            return True
+    return False
+
+
 def classify(mol: Chem.Mol) -> str:
     """Class name (one of :data:`CLASSES`) of a sanitized RDKit molecule; its largest pi-system decides."""
     has = {k: mol.HasSubstructMatch(p) for k, p in _PATTERNS.items()}
+    heavy = mol
+    if mol.GetNumAtoms() != mol.GetNumHeavyAtoms():  # explicit hydrogens (an SDF record): counts onto the atoms
+        heavy = Chem.RemoveHs(mol, sanitize=False)
+        heavy.UpdatePropertyCache(strict=False)
     try:
-        systems = perceive(Chem.RemoveHs(mol, sanitize=False))
+        systems = perceive(heavy)
     except PPPError:
         return "other"
     sys_ = max(systems, key=lambda s: s.n_centres)
@@ -83,7 +109,7 @@ def classify(mol: Chem.Mol) -> str:
         return "azo"
     if sys_.charge > 0 or has["bodipy"]:
         return "cyanine"
-    kek = Chem.Mol(mol)
+    kek = Chem.Mol(heavy)
     Chem.Kekulize(kek, clearAromaticFlags=True)
     acyclic_cc = sum(1 for b in kek.GetBonds()
                      if b.GetBondType() == Chem.BondType.DOUBLE and not b.IsInRing()
@@ -94,9 +120,7 @@ def classify(mol: Chem.Mol) -> str:
         return "polyene"
     if hydrocarbon:
         return "benzenoid" if _bipartite(sys_.n_centres, sys_.bonds) else "non-alternant"
-    donor = any(t in ("N.amino", "O.oxa") for t in sys_.types) or any(
-        a.GetSymbol() == "O" and a.GetFormalCharge() == -1 and a.GetDegree() == 1
-        and not a.GetNeighbors()[0].GetSymbol() == "N" for a in mol.GetAtoms() if a.GetIdx() in in_pi)
+    donor = _has_donor(heavy, sys_, in_pi)
     acceptor = has["nitro"] or has["cyano"] or has["carbonyl"]
     if donor and acceptor and not (has["quinone"] or has["indigoid"]):
         return "push-pull"
