@@ -114,6 +114,9 @@ def test_band_uncertainty_conversion_and_fallback(tmp_path):
     # d(lambda) = lambda dE / E: 309.96 nm * 0.10 / 4.0 = 7.75 nm
     assert u.cls == "polyene" and u.sigma_nm == pytest.approx(309.96 * 0.1 / 4.0, rel=1e-3)
     assert band_uncertainty(4.0, "azo", pset).cls == "all"
+    # the fallback is worded as the overall figure, not as a class of its own
+    assert str(band_uncertainty(4.0, "azo", pset)).endswith("(overall error 0.25 eV)")
+    assert str(u).endswith("(polyene-class error 0.10 eV)")
     assert band_uncertainty(-1.0, "azo", pset) is None
     bare = tmp_path / "bare.toml"
     bare.write_text(text[:text.index("[uncertainty]")])

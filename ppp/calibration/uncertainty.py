@@ -29,7 +29,8 @@ class BandUncertainty:
     source: str
 
     def __str__(self) -> str:
-        return f"\u00b1 {self.sigma_nm:.0f} nm ({self.cls}-class error {self.sigma_ev:.2f} eV)"
+        what = "overall error" if self.cls == "all" else f"{self.cls}-class error"  # "all": no class fits
+        return f"\u00b1 {self.sigma_nm:.0f} nm ({what} {self.sigma_ev:.2f} eV)"
 
 
 def band_uncertainty(energy_ev: float, cls: str, pset: param_registry.ParameterSet,
