@@ -13,7 +13,7 @@ from rdkit import Chem
 
 from .analysis.timings import StageTimer, maybe_stage
 from .analysis.properties import (dominant_configurations, ground_state, oscillator_strengths, polarizations,
-                                  transition_dipoles)
+                                  transition_dipoles, twisted_donor_notes)
 from .errors import ConvergenceError, InputError, PPPError, TooLargeError, UnsupportedError
 from .model import params as param_registry
 from .model import solvent as solvent_model
@@ -338,11 +338,14 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
                          f"eV <= 0 (first-order solvent treatment breaks down): triplet energies not reported")
             trip = _no_states(trip)
     with maybe_stage(timer, "properties"):
+        centres = np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices)
+        notes += twisted_donor_notes(model.core_charges, model.types, model.bonds, model.twist_factors,
+                                     scf.mo_coeff, model.n_occ, (sing.energies, sing.amplitudes),
+                                     (trip.energies, trip.amplitudes), centres)
         singlets, triplets = _states(index, sing, trip, scf, model)
         return ChromophoreResult(
             index=index,
-            atom_indices=np.arange(model.n_centres) if atom_indices is None else np.asarray(atom_indices),
-            model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
+            atom_indices=centres, model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
             singlets=singlets, triplets=triplets,
             singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
         )

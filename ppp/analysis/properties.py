@@ -203,3 +203,61 @@ def ground_state(dens: np.ndarray, core_charges: np.ndarray, coords: np.ndarray,
     orders = dens[bonds[:, 0], bonds[:, 1]].copy() if len(bonds) else np.zeros(0)
     dip = (q @ np.asarray(coords, dtype=float)) * E_ANGSTROM_DEBYE
     return GroundState(pop, q, orders, dip)
+
+
+def hole_populations(mo_coeff: np.ndarray, n_occ: int, amplitudes: np.ndarray) -> np.ndarray:
+    """Electrons each centre gives up in each excited state: the hole part of the unrelaxed CIS
+    difference density, h_mu = sum_a (sum_i X_ia C_mu,i)^2 (its occupied-occupied block -sum_a X_ia X_ja
+    taken to the centres; ZDO). For normalised X each row sums to 1. Returns (k, N)."""
+    amplitudes = np.asarray(amplitudes)
+    k = amplitudes.shape[0]
+    t = np.einsum("mi,kia->kma", mo_coeff[:, :n_occ], amplitudes)  # sum_i C_mu,i X_ia
+    return np.einsum("kma,kma->km", t, t) if k else np.zeros((0, mo_coeff.shape[0]))
+
+
+#: A lone-pair centre (core charge 2) counts as twisted out of the pi-system when its best-aligned
+#: pi-bond has |cos theta| below this (theta > 60 degrees: its conjugation, ~cos^2, down to a quarter)
+TWISTED_DONOR_COS = 0.5
+#: A state counts as a charge transfer from such a centre when it takes at least this many electrons
+#: from it (:func:`hole_populations`)
+DONOR_HOLE_MIN = 0.5
+
+
+def twisted_donor_notes(core_charges, types, bonds, twist_factors, mo_coeff, n_occ, singlets, triplets,
+                        atom_indices) -> list[str]:
+    """Warnings for states that move an electron out of a lone pair twisted out of the pi-system.
+
+    With 3D coordinates (input record or conformer) a lone-pair donor (amino N, ether O, ...) bonded
+    through strongly twisted bonds only keeps its p orbital in the model, nearly uncoupled: its charge
+    transfer to the rest of the system then comes out far too low (seen 1.5-2 eV below the planar
+    molecule's first band, as a dark or weak S1), while the real group pyramidalises and its lone pair
+    leaves the pi-system. Each such state is named, so that its number is not taken for a band.
+
+    core_charges : (N,); types : N type names; bonds : (M, 2); twist_factors : (M,) |cos theta| or None;
+    singlets, triplets : (energies (k,), amplitudes (k, n_occ, n_vir)) pairs; atom_indices : (N,) RDKit
+    indices for the message.
+    """
+    if twist_factors is None or not len(bonds):
+        return []
+    best = np.zeros(len(core_charges))
+    bonds = np.asarray(bonds)
+    for (i, j), c in zip(bonds.tolist(), np.asarray(twist_factors).tolist()):
+        best[i] = max(best[i], c)
+        best[j] = max(best[j], c)
+    donors = np.flatnonzero((np.asarray(core_charges) == 2) & (best < TWISTED_DONOR_COS))
+    if not donors.size:
+        return []
+    holes = [(label, energies, hole_populations(mo_coeff, n_occ, amps)) for label, (energies, amps)
+             in (("S", singlets), ("T", triplets)) if len(energies)]
+    notes = []
+    for d in donors.tolist():
+        hit = [f"{label}{n + 1} {e:.2f} eV" for label, energies, h in holes
+               for n, e in enumerate(np.asarray(energies).tolist()) if h[n, d] >= DONOR_HOLE_MIN]
+        if hit:
+            angle = np.degrees(np.arccos(min(1.0, best[d])))
+            notes.append(f"atom {int(atom_indices[d]) + 1} ({types[d]}) is twisted {angle:.0f}\u00b0 out of the "
+                         f"pi-system; {', '.join(hit)} take{'s' if len(hit) == 1 else ''} most of an electron "
+                         f"from its lone pair: a charge "
+                         f"transfer the pi model puts far too low once the lone pair no longer conjugates "
+                         f"(an artefact, not a band)")
+    return notes
