@@ -345,7 +345,8 @@ def _solve_model(model, options, index, atom_indices, timer, dens_guess) -> Chro
         singlets, triplets = _states(index, sing, trip, scf, model)
         return ChromophoreResult(
             index=index,
-            atom_indices=centres, model=model, scf=scf, ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
+            atom_indices=centres, model=model, scf=scf,
+            ground=ground_state(scf.dens, model.core_charges, model.coords, model.bonds),
             singlets=singlets, triplets=triplets,
             singlet_amplitudes=sing.amplitudes, triplet_amplitudes=trip.amplitudes, warnings=tuple(notes),
         )

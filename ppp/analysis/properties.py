@@ -229,8 +229,8 @@ def twisted_donor_notes(core_charges, types, bonds, twist_factors, mo_coeff, n_o
 
     With 3D coordinates (input record or conformer) a lone-pair donor (amino N, ether O, ...) bonded
     through strongly twisted bonds only keeps its p orbital in the model, nearly uncoupled: its charge
-    transfer to the rest of the system then comes out far too low (seen 1.5-2 eV below the planar
-    molecule's first band, as a dark or weak S1), while the real group pyramidalises and its lone pair
+    transfer to the rest of the system then comes out far too low (seen 1.3-2.7 eV below the planar
+    molecule's first band, often as a dark or weak S1), while the real group pyramidalises and its lone pair
     leaves the pi-system. Each such state is named, so that its number is not taken for a band.
 
     core_charges : (N,); types : N type names; bonds : (M, 2); twist_factors : (M,) |cos theta| or None;
@@ -257,7 +257,6 @@ def twisted_donor_notes(core_charges, types, bonds, twist_factors, mo_coeff, n_o
             angle = np.degrees(np.arccos(min(1.0, best[d])))
             notes.append(f"atom {int(atom_indices[d]) + 1} ({types[d]}) is twisted {angle:.0f}\u00b0 out of the "
                          f"pi-system; {', '.join(hit)} take{'s' if len(hit) == 1 else ''} most of an electron "
-                         f"from its lone pair: a charge "
-                         f"transfer the pi model puts far too low once the lone pair no longer conjugates "
-                         f"(an artefact, not a band)")
+                         f"from its lone pair: a charge transfer the pi model puts far too low once the lone "
+                         f"pair no longer conjugates (an artefact, not a band)")
     return notes
