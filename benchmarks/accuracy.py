@@ -77,6 +77,8 @@ def main(argv=None) -> int:
     ap.add_argument("--sets", help="comma-separated parameter sets (default: all shipped)")
     ap.add_argument("--quick", action="store_true", help="planar geometry only (no conformer embedding)")
     ap.add_argument("--class-fits", action="store_true", help="per-class ppp fit with cross-validation")
+    ap.add_argument("--no-auto-prior", action="store_true",
+                    help="class fits without the nested-CV rows of --prior-scale auto (about 20x quicker)")
     ap.add_argument("--jobs", type=int, default=1, help="worker processes (the machine has 2 cores)")
     ap.add_argument("--folds", type=int, default=5)
     ap.add_argument("--solvents", choices=("gas", "reference", "both"), default="both",
@@ -150,41 +152,67 @@ def main(argv=None) -> int:
 
     if args.class_fits:
         for solv in solv_flags:
-            class_fits(ref, args.folds, solv)
+            class_fits(ref, args.folds, solv, jobs=args.jobs, auto=not args.no_auto_prior)
     return 0
 
 
-def class_fits(ref, k_max: int, solvents: bool = False) -> None:
-    """For each class: default-settings error, then ppp fit on the class with k-fold CV, once with fixed
-    beta (ppp fit --bond-order-beta off) and once with bond-order beta on (ppp fit --bond-order-beta on)."""
+def _class_fit_rows(job) -> list[str]:
+    """Table rows of one class: ppp fit with fixed beta and with bond-order beta at the standard prior, and
+    with ``prior_scale="auto"`` (nested cross-validation; with bond-order beta, the default's setting)."""
+    ref_path, cls, k_max, solvents, auto = job
+    ref = reference.load(ref_path)
     name = params.default_name()
     pset = params.load(name)
     base_opts = Options(parameters=name, n_triplets=0)
+    prep = tuple(pe for pe in ev.prepare_set(ref.of_class(cls), base_opts, pset.bond_length_angstrom)
+                 if not pe.error)
+    default_mae = ev.evaluate(prep, pset, base_opts, reference_solvents=solvents).by_class()["all"].mae_ev
+    plist = [fitting.FitParameter("beta", "C-C"), fitting.FitParameter("u", "C")]
+    plist += fitting.default_parameters(prep, pset, min_count=max(2, len(prep) // 4))
+    k = min(k_max, len(prep))
+    meas = np.array([pe.entry.energy_ev for pe in prep])
+    runs = [("fixed beta", False, 1.0), ("bo-beta", True, 1.0)] + ([("bo-beta auto", True, "auto")] if auto else [])
+    rows = []
+    for label, vb, prior in runs:
+        opts = Options(parameters=name, n_triplets=0, bond_order_beta=vb)
+        t0 = time.perf_counter()
+        scale = prior
+        if prior == "auto":
+            scale = fitting.select_prior_scale(prep, pset, plist, opts, k=k, max_nfev=15,
+                                               reference_solvents=solvents).scale
+        res = fitting.fit(prep, pset, plist, opts, max_nfev=15, prior_scale=scale, reference_solvents=solvents)
+        cv = fitting.cross_validate(prep, pset, plist, opts, k=k, max_nfev=15, prior_scale=prior,
+                                    reference_solvents=solvents)
+        train_mae = float(np.nanmean(np.abs(res.energies - meas)))
+        cv_mae = float(np.nanmean(np.abs(cv.energies - meas)))
+        ratio = cv_mae / default_mae
+        note = f"prior {scale:g}; folds chose {', '.join(f'{x:g}' for x in cv.prior_scales)}; " if prior == "auto" else ""
+        rows.append(f"| {cls:<14} | {len(prep):>3} | {default_mae:10.3f} | {label:<12} | {train_mae:11.3f} | "
+                    f"{cv_mae:7.3f} | {ratio:10.2f} | {'yes' if ratio <= 2 / 3 else 'no':>6} | "
+                    f"{note}{', '.join(p.name for p in plist)} ({time.perf_counter() - t0:.0f} s, {k}-fold)")
+    return rows
+
+
+def class_fits(ref, k_max: int, solvents: bool = False, jobs: int = 1, auto: bool = True) -> None:
+    """For each class: default-settings error, then ppp fit on the class with k-fold CV, once with fixed
+    beta (ppp fit --bond-order-beta off), once with bond-order beta on (ppp fit --bond-order-beta on), both
+    at the standard prior, and with ``auto``, with bond-order beta and the prior's strength chosen by an
+    inner cross-validation (ppp fit --prior-scale auto; nested CV, about 20 times the time)."""
+    name = params.default_name()
     print(f"\nPer-class calibration, starting from the default set '{name}'"
           f"{' (every row in its own solvent, reaction field)' if solvents else ' (gas phase)'}; target: "
           f"cross-validated MAE <= 2/3 of the default's")
-    print(f"| {'class':<14} | {'n':>3} | {'default eV':>10} | {'fit options':<11} | {'training eV':>11} | "
+    print(f"| {'class':<14} | {'n':>3} | {'default eV':>10} | {'fit options':<12} | {'training eV':>11} | "
           f"{'CV eV':>7} | {'CV/default':>10} | {'<= 2/3':>6} | fitted values")
-    print("|" + "|".join("-" * w for w in (16, 5, 12, 13, 13, 9, 12, 8, 15)) + "|")
-    for cls in ref.classes:
-        prep = tuple(pe for pe in ev.prepare_set(ref.of_class(cls), base_opts, pset.bond_length_angstrom)
-                     if not pe.error)
-        default_mae = ev.evaluate(prep, pset, base_opts, reference_solvents=solvents).by_class()["all"].mae_ev
-        plist = [fitting.FitParameter("beta", "C-C"), fitting.FitParameter("u", "C")]
-        plist += fitting.default_parameters(prep, pset, min_count=max(2, len(prep) // 4))
-        k = min(k_max, len(prep))
-        meas = np.array([pe.entry.energy_ev for pe in prep])
-        for label, vb in (("fixed beta", False), ("bo-beta", True)):
-            opts = Options(parameters=name, n_triplets=0, bond_order_beta=vb)
-            t0 = time.perf_counter()
-            res = fitting.fit(prep, pset, plist, opts, max_nfev=15, reference_solvents=solvents)
-            cv = fitting.cross_validate(prep, pset, plist, opts, k=k, max_nfev=15, reference_solvents=solvents)
-            train_mae = float(np.nanmean(np.abs(res.energies - meas)))
-            cv_mae = float(np.nanmean(np.abs(cv.energies - meas)))
-            ratio = cv_mae / default_mae
-            print(f"| {cls:<14} | {len(prep):>3} | {default_mae:10.3f} | {label:<11} | {train_mae:11.3f} | "
-                  f"{cv_mae:7.3f} | {ratio:10.2f} | {'yes' if ratio <= 2 / 3 else 'no':>6} | "
-                  f"{', '.join(p.name for p in plist)} ({time.perf_counter() - t0:.0f} s, {k}-fold)", flush=True)
+    print("|" + "|".join("-" * w for w in (16, 5, 12, 14, 13, 9, 12, 8, 15)) + "|")
+    work = [(str(ref.path), cls, k_max, solvents, auto) for cls in ref.classes]
+    if jobs > 1:
+        with ProcessPoolExecutor(jobs) as pool:
+            for rows in pool.map(_class_fit_rows, work):
+                print("\n".join(rows), flush=True)
+    else:
+        for job in work:
+            print("\n".join(_class_fit_rows(job)), flush=True)
 
 
 if __name__ == "__main__":

@@ -139,3 +139,51 @@ def test_uncertainty_follows_how_the_set_was_measured(tmp_path):
     smi = "Nc1ccc(cc1)[N+](=O)[O-]"
     assert for_result(ppp.compute(smi, parameters=str(path), n_triplets=0, solvent="ethanol")) is not None
     assert for_result(ppp.compute(smi, parameters=str(path), n_triplets=0)) is None
+
+
+def test_prior_strength_chosen_by_cross_validation_and_nested():
+    # Noise-free synthetic data from parameters far from the start set: every weaker pull towards the
+    # start predicts held-out molecules better, so cross-validation must pick the weakest of the grid;
+    # the nested cross-validation lets each outer fold choose on its own training part.
+    classic = params.load("classic")
+    opts = Options(n_triplets=0)
+    fitted = [F.parse_parameter("ip:N.amino", classic), F.parse_parameter("beta:C-N.amino", classic)]
+    true_set = F.apply(classic, fitted, np.array([23.9, -2.65]))
+    prep0 = ev.prepare_set([Entry(n, s, c, "", "", "allowed", 300.0, 1.0, "") for n, s, c in SYNTH], opts)
+    prepared = ev.prepare_set(_entries([ev.predict(pe, true_set, opts) for pe in prep0]), opts)
+    sel = F.select_prior_scale(prepared, classic, fitted, opts, k=3, max_nfev=20)
+    assert sel.grid == F.PRIOR_GRID and len(sel.cv_error_ev) == len(F.PRIOR_GRID)
+    assert sel.scale == max(F.PRIOR_GRID)
+    assert list(sel.cv_error_ev) == sorted(sel.cv_error_ev, reverse=True)  # weaker pull, smaller error
+    nested = F.cross_validate(prepared, classic, fitted, opts, k=3, max_nfev=20, prior_scale="auto")
+    assert len(nested.prior_scales) == 3 and set(nested.prior_scales) <= set(F.PRIOR_GRID)
+    fixed = F.cross_validate(prepared, classic, fitted, opts, k=3, max_nfev=20, prior_scale=0.25)
+    assert fixed.prior_scales == (0.25, 0.25, 0.25)
+    err = lambda cv: np.nanmean(np.abs(cv.energies - np.array([pe.entry.energy_ev for pe in prepared])))
+    assert err(nested) < err(fixed)
+    with pytest.raises(InputError, match="number or 'auto'"):
+        F.cross_validate(prepared, classic, fitted, opts, k=3, prior_scale="best")
+
+
+def test_cli_prior_scale_auto_records_its_choice(tmp_path, cli):
+    csv = tmp_path / "ref.csv"
+    rows = ["name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source",
+            "butadiene,C=CC=C,polyene,hexane,1Bu,allowed,217,3,from memory",
+            "hexatriene,C=C/C=C/C=C,polyene,hexane,1Bu,allowed,258,6,from memory",
+            "octatetraene,C=C/C=C/C=C/C=C,polyene,hexane,1Bu,allowed,290,10,from memory",
+            "decapentaene,C=C/C=C/C=C/C=C/C=C,polyene,hexane,1Bu,allowed,334,10,from memory"]
+    csv.write_text("\n".join(rows) + "\n")
+    out = tmp_path / "auto.toml"
+    code, text, err = cli("fit", csv, "--fit", "beta:C-C", "--folds", "2", "--max-evaluations", "6",
+                          "--prior-scale", "auto", "-o", out)
+    assert code == 0, err
+    assert "prior scale by cross-validation" in text and "each fold chose its own scale" in text
+    prior = tomllib.loads(out.read_text())["provenance"]["prior"]
+    assert prior["scale"] in F.PRIOR_GRID and prior["grid"] == list(F.PRIOR_GRID)
+    assert len(prior["grid_cv_error_ev"]) == len(F.PRIOR_GRID) and len(prior["nested_fold_scales"]) == 2
+    import argparse
+    from ppp.commands.fit import _prior_scale
+    assert _prior_scale("AUTO") == "auto" and _prior_scale("0.5") == 0.5
+    for bad, why in (("-1", "negative"), ("best", "neither a number nor 'auto'"), ("nan", "negative")):
+        with pytest.raises(argparse.ArgumentTypeError, match=why):
+            _prior_scale(bad)

@@ -10,7 +10,9 @@ shift of I per alkyl substituent on a centre of type T, the set's ``[alkyl_shift
 with r_m = E_calc,m - E_exp,m in eV (a molecule whose band cannot be matched contributes a flat
 :data:`FAILED_RESIDUAL_EV`) and a weak Gaussian prior pulling each value towards its starting (literature)
 value x0_k with width s_k (:data:`PRIOR_WIDTH_EV`): ridge regularisation (Tikhonov 1963; common practice
-in semi-empirical parametrisation) so that values the data barely constrain stay physical. The minimiser
+in semi-empirical parametrisation) so that values the data barely constrain stay physical. The widths can
+be scaled by one factor, fixed or chosen by cross-validation on the data (:func:`select_prior_scale`; its
+error is then reported by a nested cross-validation, :func:`cross_validate` with ``prior_scale="auto"``). The minimiser
 is ``scipy.optimize.least_squares`` (trust-region reflective, with bounds). The Jacobian is taken by
 forward differences, recomputing only the molecules that contain the varied type or bond.
 """
@@ -254,45 +256,107 @@ class CrossValidation:
 
     energies : (n,) band energy of each entry predicted by the fit that did not see it, eV
     fold : (n,) fold number of each entry;  fits : the k fold fits
+    prior_scales : the prior scale each fold's fit used (with ``prior_scale="auto"``: the one its own
+        inner cross-validation chose)
     """
 
     energies: np.ndarray
     fold: np.ndarray
     fits: tuple[FitResult, ...]
+    prior_scales: tuple[float, ...] = ()
+
+
+#: Prior scales tried by ``prior_scale="auto"`` (multipliers of :data:`PRIOR_WIDTH_EV`): from a pull four
+#: times stronger than the standard one to a sixteen times weaker one (widths of 8 eV for beta, 32 eV for
+#: ip: hardly a pull; the box bounds of :func:`fit` still hold), in steps of four. Finer steps were tried
+#: on the reference set's classes (0.25 to 16 in steps of two): the inner choices then scatter between
+#: neighbouring values and the nested error does not improve.
+PRIOR_GRID = (0.25, 1.0, 4.0, 16.0)
+
+
+def _cv_error(energies: np.ndarray, prepared) -> float:
+    """Mean |E_cv - E_exp| (eV), an unmatched entry counting as :data:`FAILED_RESIDUAL_EV` (as in the fit)."""
+    r = np.abs(np.asarray(energies) - np.array([pe.entry.energy_ev for pe in prepared]))
+    return float(np.mean(np.where(np.isfinite(r), r, FAILED_RESIDUAL_EV)))
+
+
+@dataclass(frozen=True)
+class PriorSelection:
+    """Prior scale chosen by cross-validation: ``scale``, and the cross-validated error (eV) of every
+    value of ``grid`` (``cv_error_ev``)."""
+
+    scale: float
+    grid: tuple[float, ...]
+    cv_error_ev: tuple[float, ...]
+
+
+def select_prior_scale(prepared, pset: ParameterSet, params, options: Options = Options(), k: int = 5,
+                       seed: int = 20240601, max_nfev: int = 30, grid=PRIOR_GRID,
+                       reference_solvents: bool = False) -> PriorSelection:
+    """Strength of the pull towards the starting values chosen by k-fold cross-validation: each value of
+    ``grid`` is cross-validated on ``prepared`` and the one with the lowest error wins (the first of equal
+    ones, i.e. the stronger pull); the usual way of setting a ridge penalty (Hastie, Tibshirani & Friedman,
+    The Elements of Statistical Learning, 2009, sections 3.4 and 7.10). The winner's own error is biased
+    low by the choice: report the error of the whole procedure instead (:func:`cross_validate` with
+    ``prior_scale="auto"``, a nested cross-validation)."""
+    prepared = tuple(prepared)
+    k = min(k, len(prepared))
+    errors = tuple(_cv_error(cross_validate(prepared, pset, params, options, k=k, seed=seed, max_nfev=max_nfev,
+                                            prior_scale=s, reference_solvents=reference_solvents).energies,
+                             prepared) for s in grid)
+    return PriorSelection(float(grid[int(np.argmin(errors))]), tuple(float(s) for s in grid), errors)
 
 
 def cross_validate(prepared, pset: ParameterSet, params, options: Options = Options(), k: int = 5,
-                   seed: int = 20240601, max_nfev: int = 30, prior_scale: float = 1.0,
+                   seed: int = 20240601, max_nfev: int = 30, prior_scale: float | str = 1.0,
                    reference_solvents: bool = False) -> CrossValidation:
-    """k-fold cross-validation of :func:`fit`: each fold is predicted by parameters fitted without it."""
+    """k-fold cross-validation of :func:`fit`: each fold is predicted by parameters fitted without it.
+
+    prior_scale : a number (see :func:`fit`), or "auto": each fold's training part chooses its own scale by
+        an inner cross-validation (:func:`select_prior_scale`, at most k inner folds, seed + 1 + fold), so
+        that the error reported is that of the whole procedure, choice included (nested cross-validation;
+        Varma & Simon 2006). Costs about len(PRIOR_GRID) * k fits per fold instead of one.
+    """
     prepared = tuple(prepared)
     if not 2 <= k <= len(prepared):
         raise InputError(f"cross-validation needs 2 <= k <= {len(prepared)} folds, got {k}")
+    auto = isinstance(prior_scale, str)
+    if auto and prior_scale != "auto":
+        raise InputError(f"prior scale must be a number or 'auto', got '{prior_scale}'")
     fold = folds(prepared, k, np.random.default_rng(seed))
     energies = np.full(len(prepared), np.nan)
-    fits = []
+    fits, scales = [], []
     for f in range(k):
         train = [pe for pe, g in zip(prepared, fold) if g != f]
-        res = fit(train, pset, params, options, max_nfev=max_nfev, prior_scale=prior_scale,
+        scale = prior_scale
+        if auto:  # an inner cross-validation needs two folds of at least one entry each
+            scale = (select_prior_scale(train, pset, params, options, k=min(k, len(train)), seed=seed + 1 + f,
+                                        max_nfev=max_nfev, reference_solvents=reference_solvents).scale
+                     if len(train) >= 2 else 1.0)
+        scales.append(float(scale))
+        res = fit(train, pset, params, options, max_nfev=max_nfev, prior_scale=scale,
                   reference_solvents=reference_solvents)
         fits.append(res)
         trial = apply(pset, params, res.x)
         for m in np.flatnonzero(fold == f):
             e = predict(prepared[m], trial, options, reference_solvents=reference_solvents)
             energies[m] = np.nan if e is None else e
-    return CrossValidation(energies, fold, tuple(fits))
+    return CrossValidation(energies, fold, tuple(fits), tuple(scales))
 
 
 def write_parameter_file(pset: ParameterSet, result: FitResult, name: str, reference_path: str,
                          reference_sha256: str, description: str, uncertainty: dict[str, float],
                          cv_summary: dict[str, float], train_summary: dict[str, float],
                          bond_order_beta: bool | None = None,
-                         uncertainty_kind: str = "k-fold cross-validated", solvents: str = "gas") -> str:
+                         uncertainty_kind: str = "k-fold cross-validated", solvents: str = "gas",
+                         prior: dict | None = None) -> str:
     """TOML text of a new parameter set: ``pset`` with the fitted values and a [provenance] table.
 
     The base file's layout is kept (parsed and re-emitted); each fitted value's ``source`` says it was
     fitted, on which data set (path and SHA-256) and when. ``solvents`` ("gas" or "reference") is recorded
     in [provenance]: the errors in [uncertainty] hold for runs of the same kind (ppp.calibration.uncertainty).
+    ``prior``: how the pull towards the start values was set (e.g. the scale and its selection), recorded
+    in [provenance] as ``prior``.
     """
     import tomli_w
 
@@ -334,6 +398,8 @@ def write_parameter_file(pset: ParameterSet, result: FitResult, name: str, refer
         "optimizer": f"scipy.optimize.least_squares trf; {result.status}",
         "solvents": solvents,
     }
+    if prior:
+        data["provenance"]["prior"] = prior
     header = (f"# ppp parameter set \"{name}\", written by ppp fit from \"{pset.name}\".\n"
               f"# Fitted values carry their provenance in 'source'; see [provenance] for the data set.\n")
     text = header + tomli_w.dumps(data)
