@@ -67,21 +67,16 @@ def _bipartite(n: int, bonds) -> bool:
     return True
 
 
-def _carbonyl_carbon(atom: Chem.Atom) -> bool:
-    """A carbon with a double bond to oxygen."""
-    return atom.GetSymbol() == "C" and any(
-        b.GetBondType() == Chem.BondType.DOUBLE and b.GetOtherAtom(atom).GetSymbol() == "O" for b in atom.GetBonds())
-
-
 def _has_donor(mol: Chem.Mol, sys_, in_pi: set[int]) -> bool:
     """Rule 8's donor: an amino N, hydroxy/ether O or phenolate O- of the pi-system bonded to a pi-atom
     that is not a carbonyl carbon (``mol`` is the hydrogen-free molecule the system was perceived on)."""
+    carbonyl_c = {m[0] for m in mol.GetSubstructMatches(_PATTERNS["carbonyl"])}
     for idx, t in zip(sys_.atom_indices.tolist(), sys_.types):
         a = mol.GetAtomWithIdx(idx)
         phenolate = (a.GetSymbol() == "O" and a.GetFormalCharge() == -1 and a.GetDegree() == 1
                      and a.GetNeighbors()[0].GetSymbol() != "N")
         if (t in ("N.amino", "O.oxa") or phenolate) and any(
-                nb.GetIdx() in in_pi and not _carbonyl_carbon(nb) for nb in a.GetNeighbors()):
+                nb.GetIdx() in in_pi and nb.GetIdx() not in carbonyl_c for nb in a.GetNeighbors()):
             return True
     return False
 
