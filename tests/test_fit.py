@@ -72,7 +72,8 @@ def test_parameter_names_are_checked():
             F.parse_parameter(bad, classic)
 
 
-def test_cli_writes_set_with_provenance_and_refuses_overwrite(tmp_path, cli):
+def _polyene_csv(tmp_path):
+    """A four-row measured-band file (polyene 1Bu maxima in hexane, from memory)."""
     csv = tmp_path / "ref.csv"
     rows = ["name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source",
             "butadiene,C=CC=C,polyene,hexane,1Bu,allowed,217,3,from memory",
@@ -80,6 +81,11 @@ def test_cli_writes_set_with_provenance_and_refuses_overwrite(tmp_path, cli):
             "octatetraene,C=C/C=C/C=C/C=C,polyene,hexane,1Bu,allowed,290,10,from memory",
             "decapentaene,C=C/C=C/C=C/C=C/C=C,polyene,hexane,1Bu,allowed,334,10,from memory"]
     csv.write_text("\n".join(rows) + "\n")
+    return csv
+
+
+def test_cli_writes_set_with_provenance_and_refuses_overwrite(tmp_path, cli):
+    csv = _polyene_csv(tmp_path)
     out = tmp_path / "mine.toml"
     code, text, err = cli("fit", csv, "--fit", "beta:C-C", "--folds", "2", "--max-evaluations", "6",
                           "--bond-order-beta", "on", "-o", out)
@@ -166,13 +172,7 @@ def test_prior_strength_chosen_by_cross_validation_and_nested():
 
 
 def test_cli_prior_scale_auto_records_its_choice(tmp_path, cli):
-    csv = tmp_path / "ref.csv"
-    rows = ["name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source",
-            "butadiene,C=CC=C,polyene,hexane,1Bu,allowed,217,3,from memory",
-            "hexatriene,C=C/C=C/C=C,polyene,hexane,1Bu,allowed,258,6,from memory",
-            "octatetraene,C=C/C=C/C=C/C=C,polyene,hexane,1Bu,allowed,290,10,from memory",
-            "decapentaene,C=C/C=C/C=C/C=C/C=C,polyene,hexane,1Bu,allowed,334,10,from memory"]
-    csv.write_text("\n".join(rows) + "\n")
+    csv = _polyene_csv(tmp_path)
     out = tmp_path / "auto.toml"
     code, text, err = cli("fit", csv, "--fit", "beta:C-C", "--folds", "2", "--max-evaluations", "6",
                           "--prior-scale", "auto", "-o", out)
