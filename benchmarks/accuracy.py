@@ -186,7 +186,9 @@ def _class_fit_rows(job) -> list[str]:
         train_mae = float(np.nanmean(np.abs(res.energies - meas)))
         cv_mae = float(np.nanmean(np.abs(cv.energies - meas)))
         ratio = cv_mae / default_mae
-        note = f"prior {scale:g}; folds chose {', '.join(f'{x:g}' for x in cv.prior_scales)}; " if prior == "auto" else ""
+        note = ""
+        if prior == "auto":
+            note = f"prior {scale:g}; folds chose {', '.join(f'{x:g}' for x in cv.prior_scales)}; "
         rows.append(f"| {cls:<14} | {len(prep):>3} | {default_mae:10.3f} | {label:<12} | {train_mae:11.3f} | "
                     f"{cv_mae:7.3f} | {ratio:10.2f} | {'yes' if ratio <= 2 / 3 else 'no':>6} | "
                     f"{note}{', '.join(p.name for p in plist)} ({time.perf_counter() - t0:.0f} s, {k}-fold)")

@@ -12,8 +12,8 @@ with r_m = E_calc,m - E_exp,m in eV (a molecule whose band cannot be matched con
 value x0_k with width s_k (:data:`PRIOR_WIDTH_EV`): ridge regularisation (Tikhonov 1963; common practice
 in semi-empirical parametrisation) so that values the data barely constrain stay physical. The widths can
 be scaled by one factor, fixed or chosen by cross-validation on the data (:func:`select_prior_scale`; its
-error is then reported by a nested cross-validation, :func:`cross_validate` with ``prior_scale="auto"``). The minimiser
-is ``scipy.optimize.least_squares`` (trust-region reflective, with bounds). The Jacobian is taken by
+error is then reported by a nested cross-validation, :func:`cross_validate` with ``prior_scale="auto"``).
+The minimiser is ``scipy.optimize.least_squares`` (trust-region reflective, with bounds). The Jacobian is taken by
 forward differences, recomputing only the molecules that contain the varied type or bond.
 """
 from __future__ import annotations
