@@ -54,6 +54,34 @@ def test_csv_reader_columns_and_missing_value(tmp_path):
         list(inputs.read_items(p))
 
 
+def test_csv_from_a_spreadsheet_byte_order_mark_and_semicolons(tmp_path):
+    # spreadsheet programs save "CSV UTF-8" with a byte-order mark, and with ";" between columns where the
+    # decimal separator is a comma (common practice); both must read like a plain CSV, line numbers kept
+    rows = [("X1", "C=CC=C"), ("X2", "c1ccccc1")]
+    for sep in (",", ";", "\t", "|"):
+        p = tmp_path / "sheet.csv"
+        p.write_bytes(("\ufeff" + f"id{sep}smiles{sep}note\r\n"
+                       + "".join(f"{k}{sep}{smi}{sep}x\r\n" for k, smi in rows)).encode("utf-8"))
+        items = list(inputs.read_items(p))
+        assert [(i.source, i.name, i.payload) for i in items] == [(2, "X1", "C=CC=C"), (3, "X2", "c1ccccc1")], sep
+    # quoted commas in a ";" file do not count as separators
+    p.write_text('name;smiles;comment\nA;C=CC=C;"red, bright"\n')
+    assert [(i.name, i.payload) for i in inputs.read_items(p)] == [("A", "C=CC=C")]
+    assert inputs.header_delimiter("smiles") == ","  # one column
+
+
+def test_input_folder_and_output_over_input_are_refused(tmp_path):
+    folder = tmp_path / "lib.smi"
+    folder.mkdir()
+    with pytest.raises(InputError, match="is a folder"):
+        list(inputs.read_items(folder))
+    inp = tmp_path / "a.smi"
+    inp.write_text("C=CC=C\n")
+    with pytest.raises(InputError, match="would replace the input"):
+        run(inp, inp, jobs=1, overwrite=True)
+    assert inp.read_text() == "C=CC=C\n"
+
+
 def test_sdf_gz_reader_records_and_truncation(tmp_path):
     from rdkit import Chem
     blocks = []
@@ -226,6 +254,9 @@ def test_export_csv_filters_by_status(library, tmp_path):
     assert all(r["status"] == "failed" and r["error_message"] for r in failed)
     with pytest.raises(StorageError, match="exists"):
         export(ref, out)
+    with pytest.raises(StorageError, match="would replace the results file"):
+        export(ref, ref, overwrite=True)
+    assert n_rows(ref) == len(rows)
 
 
 def test_export_parquet_when_pyarrow_is_present(library, tmp_path):

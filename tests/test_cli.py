@@ -153,6 +153,10 @@ def test_save_refuses_to_overwrite(cli, tmp_path):
     code, _, err = cli("run", "C=C", "--save", out)
     assert code == 1 and "exists" in one_error_line(err) and "--overwrite" in err
     assert cli("run", "C=C", "--save", out, "--overwrite")[0] == 0
+    sdf = tmp_path / "in.sdf"
+    sdf.write_text("x\n")
+    code, _, err = cli("run", "--file", sdf, "--save", sdf, "--overwrite")
+    assert code == 1 and "would replace the input" in one_error_line(err) and sdf.read_text() == "x\n"
 
 
 def test_parameters_command_lists_and_shows(cli):

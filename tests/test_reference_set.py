@@ -31,6 +31,20 @@ def test_reference_set_is_complete_and_sourced():
     assert len(ref.sha256) == 64
 
 
+def test_reference_file_saved_by_a_spreadsheet_reads_the_same(tmp_path):
+    # the same table with a byte-order mark and ";" between columns (a spreadsheet's "CSV UTF-8" export in
+    # a decimal-comma locale, common practice): the same entries, hence the same fit input
+    import csv
+    import io
+    lines = [ln for ln in REF.read_text(encoding="utf-8").splitlines() if not ln.startswith("#")]
+    rows = list(csv.reader(lines))
+    buf = io.StringIO()
+    csv.writer(buf, delimiter=";", lineterminator="\r\n").writerows(rows)
+    p = tmp_path / "lab.csv"
+    p.write_bytes(b"\xef\xbb\xbf" + buf.getvalue().encode("utf-8"))
+    assert reference.load(p).entries == reference.load(REF).entries
+
+
 @dataclass(frozen=True)
 class _S:
     energy_ev: float

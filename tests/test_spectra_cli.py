@@ -69,6 +69,29 @@ def test_spectrum_from_record_equals_fresh_computation(tmp_path, capsys):
     assert "--molecule" in capsys.readouterr().err
 
 
+def test_spectrum_from_batch_results_equals_fresh_computation(tmp_path, capsys):
+    # law of the store: the states a batch keeps give the same spectrum as computing the molecule again
+    inp = tmp_path / "lib.smi"
+    inp.write_text(f"C=CC=CC=C hexatriene\nC1CC( broken\n{DYE} dye-7 azo\n")
+    res = tmp_path / "lib.h5"
+    assert main(["batch", str(inp), "-o", str(res), "--jobs", "1", "--no-progress"]) == 0
+    capsys.readouterr()
+    assert main(["spectrum", DYE, "--out", str(tmp_path / "fresh")]) == 0
+    for k, pick in enumerate(("dye-7 azo", "dye-7", "3")):  # by ID, its first word, record number
+        assert main(["spectrum", "--record", str(res), "--molecule", pick, "--out", str(tmp_path / f"b{k}")]) == 0
+        a = np.loadtxt(tmp_path / f"b{k}-curve.csv", delimiter=",", comments="#", skiprows=4)
+        b = np.loadtxt(tmp_path / "fresh-curve.csv", delimiter=",", comments="#", skiprows=4)
+        assert a == pytest.approx(b, rel=1e-9)
+    capsys.readouterr()
+    # a failed molecule says why, a missing one names what there is, several need a choice
+    for args, words in ((["--molecule", "broken"], ("broken", "failure", "parse")),
+                        (["--molecule", "nothing"], ("no molecule 'nothing'", "hexatriene")),
+                        ([], ("holds 3 molecules", "--molecule"))):
+        assert main(["spectrum", "--record", str(res), *args, "--out", str(tmp_path / "x")]) == 1
+        err = capsys.readouterr().err.strip()
+        assert len(err.splitlines()) == 1 and all(w in err for w in words), err
+
+
 def test_compare_recovers_a_known_shift(tmp_path, capsys):
     # synthetic "measured" spectrum from the molecule's own computed bands, shifted by -0.15 eV, scaled,
     # width 0.38 eV: the fit must return these (law of the fit, not a measurement)

@@ -60,6 +60,8 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
     fmt = fmt or ("parquet" if out.suffix.lower() in (".parquet", ".pq") else "csv")
     if fmt not in ("csv", "parquet"):
         raise InputError(f"export format must be csv or parquet, got '{fmt}'")
+    if out.exists() and out.resolve() == Path(path).resolve():
+        raise StorageError(f"the export '{out}' would replace the results file itself; choose another name")
     if out.exists() and not overwrite:
         raise StorageError(f"'{out}' exists; add --overwrite to replace it")
     tmp = out.with_name(f".{out.name}.tmp")

@@ -13,6 +13,7 @@ import csv
 import gzip
 import hashlib
 import io
+import itertools
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
@@ -64,16 +65,26 @@ def detect_format(path: str | Path, fmt: str | None = None) -> str:
                      f"({', '.join(FORMATS)})")
 
 
-def _open_text(path: Path):
+def check_input_file(path: Path) -> None:
+    """InputError unless ``path`` is an existing file (a folder gets its own message)."""
+    if path.is_dir():
+        raise InputError(f"input '{path}' is a folder, not a file")
     if not path.is_file():
         raise InputError(f"input file '{path}' does not exist")
+
+
+def _open_text(path: Path):
+    """Text stream of a plain or gzip file. UTF-8; a byte-order mark (spreadsheet programs write one
+    in front of "CSV UTF-8" files) is dropped, so that it does not become part of the first column's
+    name; undecodable bytes are replaced (the record holding them then fails to parse, with its line)."""
+    check_input_file(path)
     try:
         with open(path, "rb") as fh:
             magic = fh.read(2)
         raw = gzip.open(path, "rb") if magic == b"\x1f\x8b" else open(path, "rb")
     except OSError as exc:
         raise InputError(f"cannot read '{path}': {exc.strerror or exc}") from None
-    return io.TextIOWrapper(raw, encoding="utf-8", errors="replace", newline="")
+    return io.TextIOWrapper(raw, encoding="utf-8-sig", errors="replace", newline="")
 
 
 def file_sha256(path: str | Path) -> str:
@@ -102,7 +113,7 @@ def read_items(path: str | Path, fmt: str | None = None, smiles_column: str | No
             if fmt == "smiles":
                 yield from _smiles_items(fh)
             elif fmt in ("csv", "tsv"):
-                yield from _csv_items(fh, p, "\t" if fmt == "tsv" else ",", smiles_column, id_column)
+                yield from _csv_items(fh, p, "\t" if fmt == "tsv" else None, smiles_column, id_column)
             else:
                 yield from _sdf_items(fh, id_column)
     except (OSError, EOFError, gzip.BadGzipFile) as exc:
@@ -141,7 +152,33 @@ def _pick_column(header: list[str], wanted: str | None, defaults: tuple[str, ...
     return None
 
 
-def _csv_items(fh, path: Path, delimiter: str, smiles_column, id_column) -> Iterator[Item]:
+#: Column separators a ".csv" file may use, in order of preference on a tie: spreadsheet programs set to
+#: a locale with a decimal comma write ";"; "\t" and "|" are other common exports.
+CSV_DELIMITERS = (",", ";", "\t", "|")
+
+
+def header_delimiter(header_line: str) -> str:
+    """Separator of a CSV file judged from its header line: the one of :data:`CSV_DELIMITERS` that
+    occurs most often outside double quotes (",": none occurs, a one-column table). Only the header is
+    looked at: column names never hold SMILES, whose characters could mislead a count over the rows."""
+    outside, quoted = [], False
+    for ch in header_line:
+        if ch == '"':
+            quoted = not quoted
+        elif not quoted:
+            outside.append(ch)
+    text = "".join(outside)
+    counts = [text.count(d) for d in CSV_DELIMITERS]
+    best = max(range(len(CSV_DELIMITERS)), key=lambda i: (counts[i], -i))
+    return CSV_DELIMITERS[best] if counts[best] else ","
+
+
+def _csv_items(fh, path: Path, delimiter: str | None, smiles_column, id_column) -> Iterator[Item]:
+    """Rows of a table. ``delimiter`` None: judged from the header line (:func:`header_delimiter`)."""
+    if delimiter is None:
+        first = fh.readline()
+        delimiter = header_delimiter(first)
+        fh = itertools.chain([first], fh)
     reader = csv.reader(fh, delimiter=delimiter)
     try:
         header = next(reader)

@@ -260,8 +260,9 @@ def run_batch(cfg: BatchConfig, stream=None) -> BatchSummary:
     k, n = cfg.shard
     if not (n >= 1 and 1 <= k <= n):
         raise InputError(f"--shard must be K/N with 1 <= K <= N, got {k}/{n}")
-    if not cfg.input.is_file():
-        raise InputError(f"input file '{cfg.input}' does not exist")
+    inputs.check_input_file(cfg.input)
+    if cfg.output.exists() and cfg.output.resolve() == cfg.input.resolve():
+        raise InputError(f"the results file '{cfg.output}' would replace the input file; choose another name")
     pset = param_registry.load(cfg.options.parameters)
     input_sha = inputs.file_sha256(cfg.input)
     expected = sum(1 for _ in _shard_items(cfg))

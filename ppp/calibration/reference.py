@@ -24,6 +24,7 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
+from ..batch.inputs import header_delimiter
 from ..errors import InputError
 from ..results import BRIGHT_F
 from ..units import ev_to_nm, nm_to_ev
@@ -84,11 +85,11 @@ def load(path: str | Path) -> ReferenceSet:
         raise InputError(f"reference file '{p}' does not exist")
     raw = p.read_bytes()
     try:
-        text = raw.decode("utf-8")
+        text = raw.decode("utf-8-sig")  # (a spreadsheet's byte-order mark dropped)
     except UnicodeDecodeError:
         raise InputError(f"reference file '{p}' is not UTF-8 text") from None
     lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
-    reader = csv.DictReader(lines)
+    reader = csv.DictReader(lines, delimiter=header_delimiter(lines[0]) if lines else ",")
     missing = [c for c in COLUMNS if c not in (reader.fieldnames or [])]
     if missing:
         raise InputError(f"reference file '{p}': missing column(s) {', '.join(missing)}")

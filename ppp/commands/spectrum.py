@@ -22,8 +22,8 @@ DEFAULT_RANGE = {"wavelength": (200.0, 800.0), "energy": (1.5, 6.5), "wavenumber
 
 def add_source_arguments(p) -> None:
     p.add_argument("smiles", nargs="?", metavar="SMILES", help="molecule to compute")
-    p.add_argument("--record", metavar="FILE.h5", help="take the states from a 'ppp run --save' record instead")
-    p.add_argument("--molecule", metavar="NAME|N", help="which molecule of the record (name or 1-based number)")
+    p.add_argument("--record", metavar="FILE.h5", help="take the states from a 'ppp run --save' record or a 'ppp batch' results file instead")
+    p.add_argument("--molecule", metavar="NAME|N", help="which molecule of the record (name or 1-based number; for a batch file its ID, name or input record number)")
     p.add_argument("--name", help="label for titles and files (default: the SMILES or record name)")
 
 

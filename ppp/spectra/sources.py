@@ -5,9 +5,12 @@ orbital data needed for pictures.
 
 * :func:`from_result` - a :class:`ppp.MoleculeResult` from ``ppp.compute``;
 * :func:`from_record` - one molecule of a ``ppp run --save`` HDF5 record (layout in ppp/io/h5_io.py);
-* :func:`from_arrays` - excitation energies and oscillator strengths alone. This is the hook for any
-  other store of results (e.g. the batch results store): read its energies and f for one molecule and
-  pass them here; spectrum, colour and comparison then work as for the other sources (no pictures).
+* :func:`from_batch` - one molecule of a ``ppp batch`` results file (layout in ppp/batch/schema.py): its
+  stored singlet energies and f; no pictures (the store keeps no orbitals they could be drawn from);
+* :func:`from_arrays` - excitation energies and oscillator strengths alone, the hook for any other store
+  of results; spectrum, colour and comparison then work as for the other sources (no pictures).
+
+:func:`from_record` reads either kind of file, told apart by its ``format`` attribute.
 """
 from __future__ import annotations
 
@@ -109,7 +112,6 @@ def from_arrays(name: str, energy_ev, oscillator_strength, labels=None, smiles: 
 
 def record_molecules(path: str | Path) -> list[str]:
     """Names of the molecules in a record file, in file order."""
-    import h5py
     from ..io.h5_io import FORMAT
 
     with _open(path) as h5:
@@ -130,18 +132,97 @@ def _open(path):
         raise StorageError(f"cannot read '{p}' as HDF5: {exc}") from None
 
 
+def _file_format(path) -> str:
+    """The ``format`` attribute of an HDF5 file ("" when absent)."""
+    with _open(path) as h5:
+        fmt = h5.attrs.get("format", "")
+    return fmt.decode() if isinstance(fmt, bytes) else str(fmt)
+
+
+def from_batch(path: str | Path, molecule: str | None = None) -> SpectrumSource:
+    """Source from one molecule of a ``ppp batch`` results file (a running, interrupted or complete one:
+    its committed rows).
+
+    molecule : the molecule's key (the input's ID), its name, the first word of its ID when no other ID
+               starts with it, or, as a number, its 1-based record in the input file (counting records,
+               not lines: ``input_index`` + 1); None is allowed only when the file holds exactly one
+               molecule.
+    A molecule whose computation failed is an InputError giving the reason the batch recorded.
+    """
+    from ..batch import schema as S
+    from ..batch.reader import ResultsFile
+
+    with ResultsFile(path) as rf:
+        n = rf.n_rows
+        if n == 0:
+            raise InputError(f"'{path}' holds no molecules yet")
+        keys, names = rf.text("key"), rf.text("name")
+        if molecule is None:
+            if n != 1:
+                raise InputError(f"'{path}' holds {n} molecules; choose one with --molecule "
+                                 f"(its ID, name or input record number)")
+            row = 0
+        elif str(molecule) in keys:
+            row = keys.index(str(molecule))
+        elif str(molecule) in names:
+            row = names.index(str(molecule))
+        elif sum(k.split(None, 1)[:1] == [str(molecule)] for k in keys) == 1:
+            # the first word of an ID (a SMILES file's "HC-017 DANS" line gives the ID "HC-017 DANS")
+            row = next(r for r, k in enumerate(keys) if k.split(None, 1)[:1] == [str(molecule)])
+        elif str(molecule).isdigit() and int(molecule) >= 1:
+            hits = np.flatnonzero(rf.column("input_index") == int(molecule) - 1)
+            if hits.size == 0:
+                raise InputError(f"no molecule with input record number {molecule} in '{path}' "
+                                 f"(it holds {n} of the input's records)")
+            row = int(hits[0])
+        else:
+            raise InputError(f"no molecule '{molecule}' in '{path}' (neither an ID nor a name of its {n} rows; "
+                             f"e.g. {', '.join(keys[:3])})")
+        label = names[row] or keys[row]
+        if int(rf.column("status", row, row + 1)[0]) != S.OK:
+            kind = rf.text("error_kind", row, row + 1)[0]
+            msg = rf.text("error_message", row, row + 1)[0]
+            raise InputError(f"{label}: no spectrum, the batch recorded a failure ({kind}): {msg}")
+        s0 = int(rf.column("state_start", row, row + 1)[0])
+        s1 = s0 + int(rf.column("state_count", row, row + 1)[0])
+        mult = rf.states("multiplicity", s0, s1)
+        chrom = rf.states("chromophore", s0, s1)
+        energy = rf.states("energy_ev", s0, s1)
+        f = rf.states("oscillator_strength", s0, s1)
+        smiles = rf.text("smiles", row, row + 1)[0]
+        warnings = rf.warnings(row, row + 1)[0]
+    if energy.shape[0] != s1 - s0:
+        raise StorageError(f"'{path}' is damaged: the states of {label} are incomplete")
+    chroms = [(int(c), energy[(chrom == c) & (mult == 1)], f[(chrom == c) & (mult == 1)])
+              for c in np.unique(chrom)]
+    try:
+        return SpectrumSource(label, smiles, _sticks_from(chroms), (), tuple(warnings))
+    except InputError as err:
+        raise err.with_molecule(label)
+
+
 def from_record(path: str | Path, molecule: str | None = None) -> SpectrumSource:
-    """Source from one molecule of a ``ppp run --save`` record file.
+    """Source from one molecule of a ``ppp run --save`` record file, or of a ``ppp batch`` results file
+    (then :func:`from_batch`).
 
     molecule : its name, or its 1-based position in the file; None is allowed only when the file holds
                exactly one molecule.
     """
+    from ..batch.schema import FORMAT as BATCH_FORMAT
     from ..io.h5_io import FORMAT
 
+    if not Path(path).is_file():
+        raise StorageError(f"record file '{path}' does not exist")
+    try:
+        fmt = _file_format(path)
+    except StorageError:  # h5py refuses a file still open for writing or left by a killed writer: only
+        fmt = BATCH_FORMAT  # a batch file is read in that state (ResultsFile says what is wrong otherwise)
+    if fmt == BATCH_FORMAT:
+        return from_batch(path, molecule)
     with _open(path) as h5:
         try:
             if h5.attrs.get("format") != FORMAT:
-                raise StorageError(f"'{path}' is not a ppp record file")
+                raise StorageError(f"'{path}' is neither a ppp record file nor a batch results file")
             keys = sorted(h5["molecules"], key=int)
             names = [str(h5["molecules"][k].attrs["name"]) for k in keys]
             if molecule is None:
