@@ -97,6 +97,23 @@ def test_cavity_holds_hydrogens_and_substituents():
     assert np.all(with_h > bare + 0.05)
 
 
+def test_counter_ions_stay_out_of_the_cavity():
+    # a salt is dissociated in the solvent (law of the continuum model as used here): the sodium salt of
+    # methyl orange gives the states of the bare anion, whichever order the fragments are written in, and
+    # a metal bound to a chromophore has a radius (Bondi 1964) instead of stopping the run
+    from ppp.driver import compute, prepare
+    from ppp.structure.readers import mol_from_smiles
+    anion = "CN(C)c1ccc(cc1)/N=N/c1ccc(cc1)S(=O)(=O)[O-]"
+    ref = [s.energy_ev for s in compute(anion, solvent="water").chromophores[0].singlets]
+    for salt in (anion + ".[Na+]", "[Na+]." + anion, anion + ".[K+]"):
+        got = [s.energy_ev for s in compute(salt, solvent="water").chromophores[0].singlets]
+        np.testing.assert_allclose(got, ref, atol=1e-9, err_msg=salt)
+    (p,) = prepare(mol_from_smiles("c1ccccc1.[Cl-]"), Options(solvent="water"))
+    assert p.cavity.shape == (6, 4)  # the chloride is not part of benzene's cavity
+    (p,) = prepare(mol_from_smiles("c1ccccc1[Hg]C"), Options(solvent="water"))
+    assert 1.55 in p.cavity[:, 3].tolist()
+
+
 def _two_electron_energy(h, gam, c):
     """Closed-shell energy of two electrons in orbital c: 2 c.h.c + sum_ij c_i^2 c_j^2 gamma_ij."""
     return 2.0 * c @ h @ c + (c * c) @ gam @ (c * c)

@@ -1,6 +1,9 @@
-"""The atoms around a chromophore that keep solvent away from it: every heavy atom of the molecule that is
-not one of the chromophore's pi-centres, and all hydrogen atoms, as van der Waals spheres in the
-chromophore's coordinate frame. Used by the solvent reaction field (ppp.model.solvent) to descreen the
+"""The atoms around a chromophore that keep solvent away from it: every heavy atom of the chromophore's own
+covalent fragment that is not one of its pi-centres, and the fragment's hydrogen atoms, as van der Waals
+spheres in the chromophore's coordinate frame. Other fragments of the input (the Na+ of a sodium
+sulfonate dye, a chloride, water of crystallisation) are left out: a salt is dissociated in the solvent
+the continuum stands for, and a counter-ion drawn next to the dye would otherwise sit wherever the 2D
+depiction happened to put it. Used by the solvent reaction field (ppp.model.solvent) to descreen the
 Born radii of the pi-centres: the solute cavity of a continuum model is the whole molecule, not only its
 pi-centres.
 
@@ -22,10 +25,16 @@ from rdkit import Chem
 from ..errors import ParameterError
 from .geometry import scale_to_bond_length
 
-#: van der Waals radii, A: Bondi, J. Phys. Chem. 68, 441 (1964); B from Mantina, Chamberlin, Valero,
-#: Cramer & Truhlar, J. Phys. Chem. A 113, 5806 (2009). From memory.
+#: van der Waals radii, A: Bondi, J. Phys. Chem. 68, 441 (1964); B, Al, Ge, Sb, Bi, Be, Ca from Mantina,
+#: Chamberlin, Valero, Cramer & Truhlar, J. Phys. Chem. A 113, 5806 (2009). From memory. The metals are
+#: for atoms covalently bound to a dye (a metal the pi model leaves out still takes up room in the cavity).
 VDW_RADIUS_ANGSTROM = {"H": 1.20, "C": 1.70, "N": 1.55, "O": 1.52, "F": 1.47, "P": 1.80, "S": 1.80,
-                       "Cl": 1.75, "Br": 1.85, "I": 1.98, "Se": 1.90, "Si": 2.10, "B": 1.92}
+                       "Cl": 1.75, "Br": 1.85, "I": 1.98, "Se": 1.90, "Si": 2.10, "B": 1.92,
+                       "Te": 2.06, "As": 1.85, "Sn": 2.17, "Pb": 2.02, "Ga": 1.87, "In": 1.93, "Tl": 1.96,
+                       "Al": 1.84, "Ge": 2.11, "Sb": 2.06, "Bi": 2.07, "Be": 1.53,
+                       "Li": 1.82, "Na": 2.27, "K": 2.75, "Mg": 1.73, "Ca": 2.31,
+                       "Ni": 1.63, "Cu": 1.40, "Zn": 1.39, "Pd": 1.63, "Ag": 1.72, "Cd": 1.58, "Pt": 1.72,
+                       "Au": 1.66, "Hg": 1.55}
 #: X-H bond lengths, A (common practice); others 1.0 A.
 XH_LENGTH = {"C": 1.09, "N": 1.01, "O": 0.96, "S": 1.34}
 _TETRAHEDRAL = math.radians(109.47)
@@ -105,11 +114,15 @@ def cavity_spheres(mol: Chem.Mol, atom_indices: np.ndarray, centre_coords: np.nd
     pos[atom_indices] = centre_coords  # exact for the centres themselves
     normal = np.array([0.0, 0.0, 1.0])  # principal-axis frame: z is the normal of a planar chromophore
     centres = set(atom_indices.tolist())
+    own = set()  # atoms of the covalent fragment(s) holding the centres (see the module docstring)
+    for frag in Chem.GetMolFrags(mol):
+        if centres.intersection(frag):
+            own.update(frag)
     rows = []
     for atom in mol.GetAtoms():
         k = atom.GetIdx()
         sym = atom.GetSymbol()
-        if atom.GetAtomicNum() == 1:
+        if atom.GetAtomicNum() == 1 or k not in own:
             continue
         if k not in centres:
             rows.append([*pos[k], vdw_radius(sym)])
