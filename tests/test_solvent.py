@@ -112,6 +112,10 @@ def test_counter_ions_stay_out_of_the_cavity():
     assert p.cavity.shape == (6, 4)  # the chloride is not part of benzene's cavity
     (p,) = prepare(mol_from_smiles("c1ccccc1[Hg]C"), Options(solvent="water"))
     assert 1.55 in p.cavity[:, 3].tolist()
+    # an element outside Bondi's and Mantina's tables (a transition metal) takes RDKit's radius
+    from rdkit import Chem
+    (p,) = prepare(mol_from_smiles("c1ccccc1[Co]"), Options(solvent="water"))
+    assert Chem.GetPeriodicTable().GetRvdw(27) in p.cavity[:, 3].tolist()
 
 
 def _two_electron_energy(h, gam, c):

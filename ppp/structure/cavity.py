@@ -17,6 +17,7 @@ where there are two or three.
 """
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -40,12 +41,26 @@ XH_LENGTH = {"C": 1.09, "N": 1.01, "O": 0.96, "S": 1.34}
 _TETRAHEDRAL = math.radians(109.47)
 
 
+@functools.lru_cache(maxsize=1)
+def _rdkit_radii() -> dict[str, float]:
+    """Element symbol -> van der Waals radius (A) of RDKit's periodic table, elements 1-118."""
+    pt = Chem.GetPeriodicTable()
+    return {pt.GetElementSymbol(z): float(pt.GetRvdw(z)) for z in range(1, 119)}
+
+
 def vdw_radius(symbol: str) -> float:
+    """Radius (A) of :data:`VDW_RADIUS_ANGSTROM`; for an element it lacks (transition metals of dye
+    complexes, lanthanides), the van der Waals radius of RDKit's periodic table (its element data; about
+    2.0-2.5 A for these metals), so that a complex bound to a dye can still be computed in a solvent."""
     try:
         return VDW_RADIUS_ANGSTROM[symbol]
     except KeyError:
+        pass
+    r = _rdkit_radii().get(symbol, 0.0)
+    if not r > 0.0:
         raise ParameterError(f"no van der Waals radius for element {symbol} in the solvent model "
-                             f"(known: {', '.join(VDW_RADIUS_ANGSTROM)})") from None
+                             f"(known: {', '.join(VDW_RADIUS_ANGSTROM)} and RDKit's table)")
+    return r
 
 
 def _kabsch(a: np.ndarray, b: np.ndarray):
