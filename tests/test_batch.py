@@ -259,6 +259,38 @@ def test_export_csv_filters_by_status(library, tmp_path):
     assert n_rows(ref) == len(rows)
 
 
+def test_export_states_one_row_per_stored_state(library, tmp_path, cli):
+    # consistency law of the store: the long table holds exactly the stored states, in order, with the
+    # numbers unchanged, and its S1/T1 rows agree with the molecules table's summary columns
+    inp, ref = library
+    out = tmp_path / "states.csv"
+    n = export(ref, out, table="states")
+    with open(out, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    with ResultsFile(ref) as rf:
+        energy = rf.states("energy_ev")
+        f = rf.states("oscillator_strength")
+        count = rf.column("state_count")
+        keys = rf.text("key")
+        s1 = dict(zip(keys, rf.column("s1_ev")))
+        t1 = dict(zip(keys, rf.column("t1_ev")))
+    assert n == len(rows) == len(energy) == int(count.sum()) > 0
+    assert np.array_equal([float(r["energy_ev"]) for r in rows], energy)
+    assert np.array_equal([float(r["oscillator_strength"]) for r in rows], f)
+    assert {r["key"] for r in rows} == {k for k, c in zip(keys, count) if c > 0}
+    for r in rows:
+        assert r["state"] == ("S" if r["multiplicity"] == "1" else "T") + r["root"]  # one chromophore each
+        if r["state"] in ("S1", "T1"):
+            assert float(r["energy_ev"]) == (s1 if r["state"] == "S1" else t1)[r["key"]]
+        assert r["dominant"] == ("H" + (f"-{r['dominant_homo_minus']}" if r["dominant_homo_minus"] != "0" else "")
+                                 + "->L" + (f"+{r['dominant_lumo_plus']}" if r["dominant_lumo_plus"] != "0" else ""))
+    with pytest.raises(InputError, match="no states"):
+        export(ref, tmp_path / "x.csv", table="states", status="failed")
+    code, text, _ = cli("export", ref, "-o", tmp_path / "cli.csv", "--states")
+    assert code == 0 and f"wrote {n} state(s)" in text
+    assert (tmp_path / "cli.csv").read_bytes() == out.read_bytes()
+
+
 def test_export_parquet_when_pyarrow_is_present(library, tmp_path):
     inp, ref = library
     try:
@@ -270,6 +302,9 @@ def test_export_parquet_when_pyarrow_is_present(library, tmp_path):
     n = export(ref, tmp_path / "x.parquet", status="ok")
     table = pq.read_table(tmp_path / "x.parquet")
     assert table.num_rows == n and "bright_nm" in table.column_names
+    n = export(ref, tmp_path / "s.parquet", table="states")
+    table = pq.read_table(tmp_path / "s.parquet")
+    assert table.num_rows == n and table.column("state")[0].as_py() == "S1"
 
 
 def test_cli_batch_refuses_a_foreign_file_without_overwrite(tmp_path, cli):

@@ -1,4 +1,5 @@
-"""Export the molecules table of a results file (with S1, T1 and the brightest band) to CSV or Parquet.
+"""Export the molecules table of a results file (with S1, T1 and the brightest band), or its states table
+(every computed state of every molecule, one row each), to CSV or Parquet.
 
 Rows are streamed in slices, so a file of a million molecules never sits in memory whole.
 """
@@ -21,7 +22,16 @@ COLUMNS = ("key", "name", "input_index", "source", "status", "error_kind", "erro
            "canonical_smiles", "n_chromophores", "n_centres", "n_electrons", "homo_ev", "lumo_ev",
            "s1_ev", "s1_nm", "s1_f", "t1_ev", "t1_nm", "bright_ev", "bright_nm", "bright_f", "warnings")
 STATUS_FILTERS = ("all", "ok", "failed")
+TABLES = ("molecules", "states")
+#: columns of the states export: the molecule's key and name, then the stored state columns
+#: (ppp/batch/schema.py, docs/batch.md) with ``chromophore`` counted from 1 like ``root``, a ``state``
+#: label (S3, T1; "c2:S1" for chromophore 2 of a molecule with several), the transition dipole as three
+#: columns and the dominant configuration also as text ("H-1->L+2")
+STATE_EXPORT = ("key", "name", "chromophore", "state", "multiplicity", "root", "energy_ev", "wavelength_nm",
+                "oscillator_strength", "transition_dipole_x", "transition_dipole_y", "transition_dipole_z",
+                "polarization_deg", "dominant", "dominant_homo_minus", "dominant_lumo_plus", "dominant_weight")
 _TEXT = set(S.MOLECULE_TEXT)
+_STATE_TEXT = {"key", "name", "state", "dominant"}
 
 
 def _slices(rf: ResultsFile, status: str, rows: int):
@@ -44,6 +54,49 @@ def _slices(rf: ResultsFile, status: str, rows: int):
         yield out
 
 
+def _orbital(name: str, k: int) -> str:
+    return name if k == 0 else f"{name}{'-' if name == 'H' else '+'}{k}"
+
+
+def _state_slices(rf: ResultsFile, rows: int):
+    """The states of every computed molecule, molecule slice by slice (failed molecules have none)."""
+    n = rf.n_rows
+    for start in range(0, n, rows):
+        stop = min(start + rows, n)
+        count = rf.column("state_count", start, stop).astype(np.int64)
+        first = rf.column("state_start", start, stop).astype(np.int64)
+        has = count > 0
+        if not has.any():
+            continue
+        s0 = int(first[has][0])
+        s1 = int(first[has][-1] + count[has][-1])
+        st = {name: rf.states(name, s0, s1) for name, _, _ in S.STATE_COLUMNS}
+        if any(len(v) != s1 - s0 for v in st.values()) or int(count.sum()) != s1 - s0:
+            raise StorageError(f"'{rf.path}' is damaged: the states of rows {start}-{stop} are incomplete")
+        keys, names = rf.text("key", start, stop), rf.text("name", start, stop)
+        n_chrom = rf.column("n_chromophores", start, stop)
+        owner = np.repeat(np.arange(stop - start), count)
+        chrom = st["chromophore"].astype(np.int64)
+        multi = n_chrom[owner] > 1
+        mult = st["multiplicity"].astype(np.int64)
+        root = st["root"].astype(np.int64)
+        hm, lp = st["dominant_homo_minus"].astype(np.int64), st["dominant_lumo_plus"].astype(np.int64)
+        dip = st["transition_dipole"]
+        yield {
+            "key": [keys[i] for i in owner], "name": [names[i] for i in owner],
+            "chromophore": chrom + 1,
+            "state": [(f"c{c + 1}:" if m else "") + ("S" if k == 1 else "T") + str(r)
+                      for c, m, k, r in zip(chrom.tolist(), multi.tolist(), mult.tolist(), root.tolist())],
+            "multiplicity": mult, "root": root, "energy_ev": st["energy_ev"], "wavelength_nm": st["wavelength_nm"],
+            "oscillator_strength": st["oscillator_strength"], "transition_dipole_x": dip[:, 0],
+            "transition_dipole_y": dip[:, 1], "transition_dipole_z": dip[:, 2],
+            "polarization_deg": st["polarization_deg"],
+            "dominant": [f"{_orbital('H', a)}->{_orbital('L', b)}" if a >= 0 else ""
+                         for a, b in zip(hm.tolist(), lp.tolist())],
+            "dominant_homo_minus": hm, "dominant_lumo_plus": lp, "dominant_weight": st["dominant_weight"],
+        }
+
+
 def _cell(v) -> str:
     if isinstance(v, float):
         return "" if math.isnan(v) else repr(v)
@@ -51,12 +104,24 @@ def _cell(v) -> str:
 
 
 def export(path: str | Path, out: str | Path, fmt: str | None = None, status: str = "all",
-           overwrite: bool = False, rows: int = 65536) -> int:
+           overwrite: bool = False, rows: int = 65536, table: str = "molecules") -> int:
     """Write the molecules table of ``path`` to ``out`` (CSV, or Parquet when ``fmt`` or the suffix says
-    so). Returns the number of rows written. NaN (no such state) becomes an empty CSV cell / a null."""
+    so), or with ``table="states"`` its states, one row per state (:data:`STATE_EXPORT`; only molecules
+    that were computed have states, so ``status`` must stay "all" or "ok"). Returns the number of rows
+    written. NaN (no such state, an undefined polarization) becomes an empty CSV cell / a null."""
     out = Path(out)
     if status not in STATUS_FILTERS:
         raise InputError(f"status filter must be one of {', '.join(STATUS_FILTERS)}, got '{status}'")
+    if table not in TABLES:
+        raise InputError(f"table must be one of {', '.join(TABLES)}, got '{table}'")
+    if table == "states" and status == "failed":
+        raise InputError("failed molecules have no states; export the molecules table to see why they failed")
+    columns = STATE_EXPORT if table == "states" else COLUMNS
+    text_cols = _STATE_TEXT if table == "states" else _TEXT | {"status"}
+
+    def slices(rf):
+        return _state_slices(rf, rows) if table == "states" else _slices(rf, status, rows)
+
     fmt = fmt or ("parquet" if out.suffix.lower() in (".parquet", ".pq") else "csv")
     if fmt not in ("csv", "parquet"):
         raise InputError(f"export format must be csv or parquet, got '{fmt}'")
@@ -75,16 +140,15 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
                 raise InputError("Parquet export needs pyarrow (pip install pyarrow); CSV works without it") from None
             writer = None
             try:
-                for part in _slices(rf, status, rows):
-                    table = pa.table({k: (pa.array(v, from_pandas=True) if not isinstance(v, list) else pa.array(v, pa.string()))
+                for part in slices(rf):
+                    chunk = pa.table({k: (pa.array(v, from_pandas=True) if not isinstance(v, list) else pa.array(v, pa.string()))
                                       for k, v in part.items()})
                     if writer is None:
-                        writer = pq.ParquetWriter(tmp, table.schema)
-                    writer.write_table(table)
-                    n += table.num_rows
+                        writer = pq.ParquetWriter(tmp, chunk.schema)
+                    writer.write_table(chunk)
+                    n += chunk.num_rows
                 if writer is None:
-                    empty = {k: pa.array([], pa.string() if (k in _TEXT or k == "status") else pa.float64())
-                             for k in COLUMNS}
+                    empty = {k: pa.array([], pa.string() if k in text_cols else pa.float64()) for k in columns}
                     pq.write_table(pa.table(empty), tmp)
             finally:
                 if writer is not None:
@@ -92,9 +156,9 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
         else:
             with open(tmp, "w", newline="", encoding="utf-8") as fh:
                 w = csv.writer(fh)
-                w.writerow(COLUMNS)
-                for part in _slices(rf, status, rows):
-                    cols = [part[c].tolist() if isinstance(part[c], np.ndarray) else part[c] for c in COLUMNS]
+                w.writerow(columns)
+                for part in slices(rf):
+                    cols = [part[c].tolist() if isinstance(part[c], np.ndarray) else part[c] for c in columns]
                     for row in zip(*cols):
                         w.writerow([_cell(v) for v in row])
                         n += 1
