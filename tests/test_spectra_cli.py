@@ -11,7 +11,7 @@ import pytest
 
 from ppp.cli import main
 from ppp.spectra.lineshapes import LineShape, epsilon
-from ppp.spectra.measured import read_csv
+from ppp.spectra.measured import read_csv, read_jcamp
 from ppp.units import EV_CM1, F_PER_INTEGRATED_EPSILON, HC_EV_NM
 
 DYE = "CN(C)c1ccc(cc1)/N=N/c1ccccc1"
@@ -36,6 +36,11 @@ def test_spectrum_writes_csv_plot_and_pictures(tmp_path, capsys):
     # the curve file reads back as a spectrum and holds the f of the bands inside the window
     curve = read_csv(tmp_path / "dye-curve.csv")
     assert curve.quantity == "epsilon"
+    # the JCAMP-DX copy, read by the jcamp package (PyPI), holds the same curve, in nm ascending
+    jdx = read_jcamp(tmp_path / "dye-curve.jdx")
+    assert jdx.quantity == "epsilon" and jdx.axis_unit == "nm"
+    assert np.array_equal(jdx.energy_ev, curve.energy_ev) and np.array_equal(jdx.values, curve.values)
+    assert "not a measurement" in (tmp_path / "dye-curve.jdx").read_text()
     f_sum = F_PER_INTEGRATED_EPSILON * np.trapezoid(curve.values, curve.wavenumber_cm1)
     f_sticks = sum(s["f"] for s in doc["sticks"])
     assert f_sum == pytest.approx(f_sticks, rel=5e-3)

@@ -89,7 +89,7 @@ def band_notes(shape, prog) -> list[str]:
 def add_arguments(p) -> None:
     add_source_arguments(p)
     p.add_argument("--out", "-o", required=True, metavar="PREFIX",
-                   help="output prefix: PREFIX-curve.csv, PREFIX-sticks.csv, PREFIX-spectrum.png/.svg, ...")
+                   help="output prefix: PREFIX-curve.csv (and .jdx, JCAMP-DX), PREFIX-sticks.csv, PREFIX-spectrum.png/.svg, ...")
     p.add_argument("--overwrite", action="store_true", help="allow replacing existing output files")
     p.add_argument("--axis", choices=("wavelength", "energy", "wavenumber"), default="wavelength", help="x axis of the plot and CSV order")
     p.add_argument("--range", nargs=2, type=float, metavar=("LO", "HI"),
@@ -125,7 +125,7 @@ def main(args) -> int:
     grid = _grid_for(args.axis, window)
     src = source_from_args(args)
     prefix = args.out
-    files = {"curve": f"{prefix}-curve.csv", "sticks": f"{prefix}-sticks.csv",
+    files = {"curve": f"{prefix}-curve.csv", "curve_jcamp": f"{prefix}-curve.jdx", "sticks": f"{prefix}-sticks.csv",
              "plot_png": f"{prefix}-spectrum.png", "plot_svg": f"{prefix}-spectrum.svg"}
     picture_jobs = []
     if args.pictures:
@@ -139,6 +139,7 @@ def main(args) -> int:
     notes = band_notes(shape, prog)
     output.write_curve_csv(files["curve"], curve, src.name, notes,
                            ascending="wavelength" if args.axis == "wavelength" else "energy")
+    output.write_curve_jcamp(files["curve_jcamp"], curve, src.name, notes)
     output.write_sticks_csv(files["sticks"], src.sticks, src.name)
     sample = f"{args.concentration:g} M, {args.path_length:g} cm"
     plots.plot_spectrum(curve, src.sticks, [files["plot_png"], files["plot_svg"]], axis=args.axis, window=window,

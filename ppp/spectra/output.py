@@ -53,6 +53,31 @@ def write_curve_csv(path, curve, name: str, notes=(), ascending: str = "waveleng
     return path
 
 
+def write_curve_jcamp(path, curve, name: str, notes=()) -> Path:
+    """Simulated curve as a JCAMP-DX 4.24 UV/VIS spectrum (McDonald & Wilks 1988): wavelength (nm)
+    ascending against molar absorptivity (M-1 cm-1), one (X, Y) pair per line (``##XYPOINTS=(XY..XY)``,
+    the form for unevenly spaced X: the grid is even in energy). Spectroscopy programs open it beside
+    their measured spectra; it reads back with ``ppp.spectra.measured.read_jcamp``. ``##ORIGIN`` and
+    the ``$$`` comment lines say that it is a computation, with the band shape used."""
+    e = curve.energy_ev[::-1]
+    wl, eps = HC_EV_NM / e, curve.epsilon[::-1]
+    title = " ".join(str(name).split()) or "molecule"
+    head = [f"##TITLE={title} (simulated absorption spectrum)", "##JCAMP-DX=4.24", "##DATA TYPE=UV/VIS SPECTRUM",
+            f"##ORIGIN=computed with ppp {__version__} (PPP pi-electron model, CIS); not a measurement",
+            "##OWNER=computed data; no rights reserved"]
+    head += [f"$$ {n}" for n in notes]
+    head += ["##XUNITS=NANOMETERS", "##YUNITS=MOLAR ABSORPTIVITY", "##XFACTOR=1", "##YFACTOR=1",
+             f"##FIRSTX={wl[0]:.4f}", f"##LASTX={wl[-1]:.4f}", f"##NPOINTS={len(wl)}", f"##FIRSTY={eps[0]:.6g}",
+             f"##MINY={eps.min():.6g}", f"##MAXY={eps.max():.6g}", "##XYPOINTS=(XY..XY)"]
+    path = Path(path)
+    with path.open("w", encoding="ascii", errors="replace", newline="\r\n") as fh:
+        fh.write("\n".join(head) + "\n")
+        for x, y in zip(wl, eps):
+            fh.write(f"{x:.4f}, {y:.6g}\n")
+        fh.write("##END=\n")
+    return path
+
+
 def write_sticks_csv(path, sticks, name: str, notes=()) -> Path:
     """Stick spectrum: state, energy (eV), wavelength (nm), wavenumber (cm-1), oscillator strength."""
     path = Path(path)
