@@ -106,6 +106,35 @@ def test_cli_writes_set_with_provenance_and_refuses_overwrite(tmp_path, cli):
     assert out.read_bytes() == before
 
 
+def test_a_lab_table_of_smiles_and_maxima_is_enough(tmp_path, cli):
+    # a lab's own table as it stands: SMILES and measured maxima only (values from memory, cf. the
+    # reference set: hexatriene 258, octatetraene 290, stilbene 295, diphenylbutadiene 330 nm); the
+    # classes come from the same structure rules as the "±" of an output
+    from ppp.calibration import reference
+    from ppp.calibration.classes import classify_smiles
+    rows = [("C=CC=CC=C", 258), ("C=CC=CC=CC=C", 290), ("c1ccc(cc1)/C=C/c1ccccc1", 295),
+            ("c1ccc(cc1)/C=C/C=C/c1ccccc1", 330)]
+    lab = tmp_path / "lab.csv"
+    lab.write_text("smiles,lambda_max_nm\n" + "".join(f"{s},{v}\n" for s, v in rows))
+    ref = reference.load(lab)
+    assert [(e.name, e.smiles, e.cls, e.match, e.lambda_nm) for e in ref.entries] == [
+        (f"row {k}", s, classify_smiles(s), "allowed", float(v)) for k, (s, v) in enumerate(rows, start=1)]
+    assert all(np.isnan(e.uncertainty_nm) and e.solvent == "" for e in ref.entries)
+    out = tmp_path / "lab.toml"
+    code, text, err = cli("fit", lab, "--fit", "beta:C-C", "--folds", "2", "--max-evaluations", "6", "-o", out)
+    assert code == 0, err
+    assert "polyene" in tomllib.loads(out.read_text())["uncertainty"]["mae_ev"]
+    # rows that name no solvent are computed in the gas phase when each row's own solvent is asked for
+    code, _, err = cli("fit", lab, "--fit", "beta:C-C", "--folds", "2", "--max-evaluations", "2",
+                       "--solvents", "reference", "-o", tmp_path / "lab2.toml")
+    assert code == 0, err
+    # without a SMILES or a maximum there is nothing to fit: one line naming what is missing
+    bad = tmp_path / "bad.csv"
+    bad.write_text("name,smiles\nx,C=C\n")
+    code, _, err = cli("fit", bad, "-o", tmp_path / "y.toml")
+    assert code == 1 and "lambda_nm or lambda_max_nm" in err and err.count("\n") == 1
+
+
 def test_cli_rejects_unknown_class(tmp_path, cli):
     csv = tmp_path / "ref.csv"
     csv.write_text("name,smiles,class,solvent,band,match,lambda_nm,uncertainty_nm,source\n"

@@ -77,8 +77,9 @@ def singlets(preps, pset: ParameterSet, options: Options = Options(), n_singlets
 
 
 def entry_options(entry: Entry, options: Options) -> Options:
-    """The options with the solvent of the entry's measurement (qualifiers such as "(acidic)" dropped)."""
-    return replace(options, solvent=reference_solvent(entry.solvent))
+    """The options with the solvent of the entry's measurement (qualifiers such as "(acidic)" dropped); a
+    row that names no solvent is computed in the gas phase."""
+    return replace(options, solvent=reference_solvent(entry.solvent) or None)
 
 
 def predict(pe: PreparedEntry, pset: ParameterSet, options: Options = Options(),

@@ -4,6 +4,13 @@ A reference set is a CSV file (``#`` lines are comments) with the columns
 
     name, smiles, class, solvent, band, match, lambda_nm, uncertainty_nm, source
 
+Only ``smiles`` and ``lambda_nm`` (or ``lambda_max_nm``) are required, so that a lab can fit its own
+table as it stands; a missing column takes its default for every row (:data:`DEFAULTS`): the class from
+the structure rules that also choose the "±" of an output (:mod:`ppp.calibration.classes`), so that the
+errors a fit writes per class are looked up for new molecules by the same rules; no solvent (gas phase
+under ``--solvents reference``), match ``allowed``, an unknown uncertainty (NaN; it is only reported,
+never used to weight the fit), and "row K" as the name.
+
 ``match`` says which computed singlet is compared with the measured band, decided from the computed
 states alone (never from the measured value):
 
@@ -25,7 +32,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..batch.inputs import header_delimiter
-from ..errors import InputError
+from ..errors import InputError, PPPError
 from ..results import BRIGHT_F
 from ..units import ev_to_nm, nm_to_ev
 
@@ -36,6 +43,12 @@ ALLOWED_F = BRIGHT_F
 N_SINGLETS = 8
 MATCH_RULES = ("allowed", "S1", "S2")
 COLUMNS = ("name", "smiles", "class", "solvent", "band", "match", "lambda_nm", "uncertainty_nm", "source")
+REQUIRED = ("smiles", "lambda_nm")
+#: other names accepted for a column (a lab's own table)
+ALIASES = {"lambda_nm": ("lambda_max_nm",)}
+#: value of a column the file lacks, for every row ("class": from the structure, see the module docstring)
+DEFAULTS = {"name": "", "class": "", "solvent": "", "band": "", "match": "allowed", "uncertainty_nm": "nan",
+            "source": ""}
 
 
 @dataclass(frozen=True)
@@ -90,32 +103,56 @@ def load(path: str | Path) -> ReferenceSet:
         raise InputError(f"reference file '{p}' is not UTF-8 text") from None
     lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
     reader = csv.DictReader(lines, delimiter=header_delimiter(lines[0]) if lines else ",")
-    missing = [c for c in COLUMNS if c not in (reader.fieldnames or [])]
+    fields = [f.strip() for f in (reader.fieldnames or [])]
+    reader.fieldnames = fields
+    column = {}  # our column name -> the file's
+    for c in COLUMNS:
+        column[c] = next((f for f in (c, *ALIASES.get(c, ())) if f in fields), None)
+    missing = [" or ".join((c, *ALIASES.get(c, ()))) for c in REQUIRED if column[c] is None]
     if missing:
-        raise InputError(f"reference file '{p}': missing column(s) {', '.join(missing)}")
+        raise InputError(f"reference file '{p}': missing column(s) {', '.join(missing)} (it has: {', '.join(fields)})")
     entries = []
     for k, row in enumerate(reader, start=1):
-        where = f"reference file '{p.name}', row {k} ({row.get('name') or '?'})"
-        if None in row or any(row[c] is None for c in COLUMNS):
+        where = f"reference file '{p.name}', row {k} ({row.get(column['name'] or '') or '?'})"
+        if None in row or any(row[f] is None for f in column.values() if f is not None):
             raise InputError(f"{where}: wrong number of fields")
+        val = {c: (row[f] if f is not None else DEFAULTS[c]) for c, f in column.items()}
+        unc_text = val["uncertainty_nm"].strip() or "nan"  # a blank cell: unknown, like a missing column
         try:
-            lam = float(row["lambda_nm"])
-            unc = float(row["uncertainty_nm"])
+            lam = float(val["lambda_nm"])
+            unc = float(unc_text)
         except ValueError:
             raise InputError(f"{where}: lambda_nm and uncertainty_nm must be numbers") from None
         if not (math.isfinite(lam) and 50.0 < lam < 5000.0):
             raise InputError(f"{where}: lambda_nm {lam} outside 50-5000 nm")
-        if not (math.isfinite(unc) and unc > 0):
+        if not (unc > 0 and math.isfinite(unc)) and unc_text != "nan":
             raise InputError(f"{where}: uncertainty_nm must be positive")
-        if row["match"] not in MATCH_RULES:
-            raise InputError(f"{where}: match '{row['match']}' is not one of {', '.join(MATCH_RULES)}")
-        if not row["smiles"].strip() or not row["class"].strip():
-            raise InputError(f"{where}: empty smiles or class")
-        entries.append(Entry(row["name"], row["smiles"].strip(), row["class"].strip(), row["solvent"],
-                             row["band"], row["match"], lam, unc, row["source"]))
+        match = val["match"].strip() or "allowed"
+        if match not in MATCH_RULES:
+            raise InputError(f"{where}: match '{match}' is not one of {', '.join(MATCH_RULES)}")
+        smiles = val["smiles"].strip()
+        if not smiles:
+            raise InputError(f"{where}: empty smiles")
+        cls = val["class"].strip()
+        if not cls:
+            if column["class"] is not None:
+                raise InputError(f"{where}: empty class (leave the column out to have it from the structure)")
+            cls = _class_of(smiles)
+        entries.append(Entry(val["name"] or f"row {k}", smiles, cls, val["solvent"], val["band"], match, lam, unc,
+                             val["source"]))
     if not entries:
         raise InputError(f"reference file '{p}' holds no rows")
     return ReferenceSet(tuple(entries), str(p), hashlib.sha256(raw).hexdigest())
+
+
+def _class_of(smiles: str) -> str:
+    """Structure class of a row without a class column; "other" for a SMILES that does not parse (the row
+    is then reported as skipped, with the parse error, when the set is evaluated)."""
+    from .classes import classify_smiles
+    try:
+        return classify_smiles(smiles)
+    except PPPError:
+        return "other"
 
 
 def match_state(singlets, rule: str):
