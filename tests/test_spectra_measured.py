@@ -88,6 +88,30 @@ def test_csv_axis_units(tmp_path, header, unit):
     assert spec.values[::-1] == pytest.approx(a, rel=1e-12)
 
 
+def test_csv_as_instruments_export_it(tmp_path):
+    # a sample-name line above the header, columns named by their unit alone, a run report after a blank
+    # line (layouts of common spectrometer exports; common practice): the same curve as the plain file
+    wl, a = known_curve()
+    rows = "".join(f"{float(u)!r},{float(v)!r},\n" for u, v in zip(wl, a))
+    report = "\nMethod: scan 200-800 nm\nOperator,me\nCollection time: 10:00\n"
+    for header in ("Wavelength (nm),Abs,", "nm,A,", "nm,Abs,"):
+        p = tmp_path / "export.csv"
+        p.write_text("dye 7 in ethanol,,\n" + header + "\n" + rows + report)
+        spec = read_csv(p)
+        assert spec.title == "dye 7 in ethanol" and spec.quantity == "absorbance", header
+        assert spec.wavelength_nm[::-1] == pytest.approx(wl, rel=1e-12)
+        assert spec.values[::-1] == pytest.approx(a, rel=1e-12)
+    for header, unit in (("cm-1;Abs", "cm-1"), ("eV\tabsorbance", "eV")):
+        x = 1e7 / wl if unit == "cm-1" else HC_EV_NM / wl
+        sep = ";" if ";" in header else "\t"
+        p.write_text(header + "\n" + "".join(f"{float(u)!r}{sep}{float(v)!r}\n" for u, v in zip(x, a)))
+        assert read_csv(p).axis_unit == unit
+    # two blocks of numbers are refused, not merged
+    p.write_text("nm,A\n" + rows + "\n" + rows)
+    with pytest.raises(MeasuredSpectrumError, match="second block"):
+        read_csv(p)
+
+
 def test_csv_epsilon_and_log_epsilon(tmp_path):
     wl = np.linspace(300, 500, 21)
     eps = 1e4 * np.exp(-0.5 * ((wl - 400) / 30) ** 2) + 10.0

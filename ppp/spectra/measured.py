@@ -1,7 +1,8 @@
 """Measured spectra in: CSV with a header naming units, and JCAMP-DX (through the ``jcamp`` package).
 
 CSV layout (ppp's own, documented in docs/spectra.md): optional comment lines starting with ``#``, one
-header line, then numbers. Columns are separated by commas, semicolons, tabs or (if none of these
+header line (up to :data:`HEADER_SEARCH_LINES` title lines above it are skipped), then numbers (up to a
+blank line, after which an instrument's run report is ignored). Columns are separated by commas, semicolons, tabs or (if none of these
 appear in the header) white space. The header names each column as ``quantity (unit)``,
 ``quantity [unit]``, ``quantity/unit`` or ``quantity_unit``. The first column naming an axis quantity
 and the first naming an intensity quantity are used; other columns are ignored.
@@ -119,10 +120,15 @@ def _norm_name(name: str) -> str:
     return re.sub(r"[\s_\-()]", "", name.strip().lower())
 
 
+#: axis columns named by their unit alone, as :func:`_norm_name` leaves the name
+_BARE_AXIS_UNITS = {"nm": "nm", "cm1": "cm-1", "ev": "eV"}
+
+
 def _axis_kind(name: str, unit: str) -> str | None:
-    """Unit key of an axis column, None if the name is not an axis quantity; raises on a bad unit."""
+    """Unit key of an axis column, None if the name is not an axis quantity; raises on a bad unit. A
+    column named by its unit alone ('nm', 'cm-1', 'eV', as some instruments write) is an axis too."""
     if name not in _AXIS_QUANTITY:
-        return None
+        return None if unit else _BARE_AXIS_UNITS.get(name)
     u = _AXIS_UNITS.get(_norm_unit(unit))
     if u is None:
         allowed = {"nm": "nm", "cm-1": "cm-1", "eV": "eV"}[_AXIS_QUANTITY[name]]
@@ -187,8 +193,45 @@ def make_spectrum(x: np.ndarray, y: np.ndarray, axis_unit: str, intensity: str, 
 
 # --- CSV ----------------------------------------------------------------------------------------------
 
+#: Lines searched for the header: instrument exports put a sample name or a run title above it.
+HEADER_SEARCH_LINES = 5
+
+
+def _columns_of(header: str):
+    """(separator, axis column, axis unit, intensity column, intensity kind) of a header line; the columns
+    are None where the header names none. Raises MeasuredSpectrumError for a known name with a bad unit."""
+    sep = next((s for s in (",", ";", "\t") if s in header), None)
+    cells = [c.strip() for c in header.split(sep)] if sep else header.split()
+    ix = iy = axis_unit = intensity = None
+    for k, col in enumerate(cells):
+        name, unit = _split_header_token(col)
+        if ix is None:
+            u = _axis_kind(name, unit)
+            if u is not None:
+                ix, axis_unit = k, u
+                continue
+        if iy is None:
+            kind = _intensity_kind(name, unit)
+            if kind is not None:
+                iy, intensity = k, kind
+    return sep, ix, axis_unit, iy, intensity
+
+
+def _numbers(cells: list[str]) -> bool:
+    try:
+        [float(c) for c in cells if c]
+    except ValueError:
+        return False
+    return any(cells)
+
+
 def read_csv(path: str | Path) -> MeasuredSpectrum:
-    """Read a measured spectrum from ppp's CSV layout (see module docstring)."""
+    """Read a measured spectrum from ppp's CSV layout (see module docstring).
+
+    Instrument exports are met half-way: up to :data:`HEADER_SEARCH_LINES` lines above the header (a
+    sample name, a run title) are skipped, the first of them kept as the title; the data end at the first
+    blank line after them, and text that follows there (an instrument's run report) is ignored, unless
+    rows of numbers follow it again (two blocks of data are refused, not merged)."""
     p = Path(path)
     src = p.name
     try:
@@ -197,53 +240,63 @@ def read_csv(path: str | Path) -> MeasuredSpectrum:
         raise MeasuredSpectrumError(f"file '{p}' does not exist") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise MeasuredSpectrumError(f"cannot read '{p}': {exc}") from None
-    lines = [(n + 1, ln.strip()) for n, ln in enumerate(text.splitlines())]
-    lines = [(n, ln) for n, ln in lines if ln and not ln.startswith("#")]
+    numbered = [(n + 1, ln.strip()) for n, ln in enumerate(text.splitlines())]
+    lines = [(n, ln) for n, ln in numbered if ln and not ln.startswith("#")]
     if not lines:
         raise MeasuredSpectrumError(f"{src}: empty file (no header, no data)")
-    header_no, header = lines[0]
-    sep = next((s for s in (",", ";", "\t") if s in header), None)
+    found = None
+    try:
+        for k, (n, ln) in enumerate(lines[:HEADER_SEARCH_LINES]):
+            cols = _columns_of(ln)
+            if cols[1] is not None and cols[3] is not None:
+                found = k, cols
+                break
+            sep = cols[0]
+            if _numbers([c.strip() for c in ln.split(sep)] if sep else ln.split()):
+                break  # data before any header
+    except MeasuredSpectrumError as err:
+        raise MeasuredSpectrumError(f"{src}: {err.reason}") from None
+    if found is None:
+        first = lines[0][1]
+        sep = _columns_of(first)[0]
+        if _numbers([c.strip() for c in first.split(sep)] if sep else first.split()):
+            raise MeasuredSpectrumError(
+                f"{src}: first line is numbers, not a header; name the columns, e.g. 'wavelength (nm),absorbance'")
+        raise MeasuredSpectrumError(
+            f"{src}: no header line naming an axis column (wavelength (nm), wavenumber (cm-1) or energy (eV)) "
+            f"and an intensity column (absorbance, epsilon (M-1 cm-1) or log epsilon) in its first "
+            f"{HEADER_SEARCH_LINES} lines; first line: '{first[:40]}'")
+    k, (sep, ix, axis_unit, iy, intensity) = found
+    header_no = lines[k][0]
+    above = [ln for _, ln in lines[:k]]
 
     def split(ln: str) -> list[str]:
         return [c.strip() for c in ln.split(sep)] if sep else ln.split()
 
-    columns = split(header)
-    try:
-        [float(c) for c in columns]
-        raise MeasuredSpectrumError(
-            f"{src}: first line is numbers, not a header; name the columns, e.g. 'wavelength (nm),absorbance'")
-    except ValueError:
-        pass
-    ix = iy = None
-    axis_unit = intensity = None
-    try:
-        for k, col in enumerate(columns):
-            name, unit = _split_header_token(col)
-            if ix is None:
-                u = _axis_kind(name, unit)
-                if u is not None:
-                    ix, axis_unit = k, u
-                    continue
-            if iy is None:
-                kind = _intensity_kind(name, unit)
-                if kind is not None:
-                    iy, intensity = k, kind
-    except MeasuredSpectrumError as err:
-        raise MeasuredSpectrumError(f"{src}: {err.reason}") from None
-    if ix is None or iy is None:
-        missing = "an axis column (wavelength (nm), wavenumber (cm-1) or energy (eV))" if ix is None else \
-            "an intensity column (absorbance, epsilon (M-1 cm-1) or log epsilon)"
-        raise MeasuredSpectrumError(f"{src}: header '{header}' has no {missing}")
     xs, ys = [], []
-    for n, ln in lines[1:]:
+    after = [(n, ln) for n, ln in numbered if n > header_no and not ln.startswith("#")]
+    end = len(after)
+    for j, (n, ln) in enumerate(after):
+        if not ln:
+            if xs:  # a blank line after data: the data block ends here
+                end = j
+                break
+            continue
         cells = split(ln)
         try:
             xs.append(float(cells[ix]))
             ys.append(float(cells[iy]))
         except (ValueError, IndexError):
             raise MeasuredSpectrumError(f"{src}: line {n} is not a row of numbers: '{ln[:40]}'") from None
+    for n, ln in after[end:]:
+        cells = split(ln) if ln else []
+        if len(cells) > max(ix, iy) and _numbers([cells[ix], cells[iy]]):
+            raise MeasuredSpectrumError(f"{src}: a second block of numbers starts at line {n}; "
+                                        "give one spectrum per file")
     title = next((ln.strip()[1:].strip() for ln in text.splitlines()
                   if ln.strip().startswith("#") and ln.strip()[1:].strip()), "")
+    if not title and above:
+        title = above[0].strip(" ,;\t")
     return make_spectrum(np.array(xs), np.array(ys), axis_unit, intensity, src, title)
 
 
