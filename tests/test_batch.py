@@ -291,6 +291,30 @@ def test_export_states_one_row_per_stored_state(library, tmp_path, cli):
     assert (tmp_path / "cli.csv").read_bytes() == out.read_bytes()
 
 
+def test_export_colour_equals_the_spectrum_command(library, tmp_path, cli):
+    # the colour column of a molecule is the colour 'ppp spectrum' gives for the same stored states
+    import json
+    inp, ref = library
+    out = tmp_path / "c.csv"
+    code, _, err = cli("export", ref, "-o", out, "--colour", "--concentration", "2e-5")
+    assert code == 0, err
+    with open(out, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    ok = [r for r in rows if r["status"] == "ok"]
+    assert all(r["colour_hex"].startswith("#") for r in ok)
+    assert all(r["colour_hex"] == "" and r["colour_L_star"] == "" for r in rows if r["status"] == "failed")
+    for r in ok[:3]:
+        code, text, err = cli("spectrum", "--record", ref, "--molecule", r["key"], "--json", "--concentration",
+                              "2e-5", "--out", tmp_path / r["key"].replace(" ", "_"))
+        assert code == 0, err
+        doc = json.loads(text)["colour"]
+        assert doc["hex"] == r["colour_hex"]
+        assert [float(r["colour_L_star"]), float(r["colour_a_star"]), float(r["colour_b_star"])] == \
+            pytest.approx(doc["Lab"], abs=2e-3)  # the JSON rounds to 3 decimals
+    code, _, err = cli("export", ref, "-o", tmp_path / "s.csv", "--states", "--colour")
+    assert code == 1 and "molecules table" in err
+
+
 def test_export_parquet_when_pyarrow_is_present(library, tmp_path):
     inp, ref = library
     try:

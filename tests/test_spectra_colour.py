@@ -13,7 +13,7 @@ from ppp.errors import InputError
 from ppp.spectra.lineshapes import LineShape, Sticks, epsilon
 from ppp.spectra.perceived import (colour_from_xyz, colour_of_absorbance, colour_of_solution, transmittance,
                                    xyz_of_transmittance)
-from ppp.units import nm_to_ev
+from ppp.units import HC_EV_NM, nm_to_ev
 
 # colour.sd_to_XYZ docstring example: a reflectance sampled 400-700 nm every 20 nm
 DOC_WL = np.arange(400.0, 701.0, 20.0)
@@ -82,3 +82,20 @@ def test_beer_lambert_and_bad_sample():
         transmittance(np.array([1.0]), -1.0, 1.0)
     with pytest.raises(InputError):
         xyz_of_transmittance(np.array([500.0, 400.0, 600.0]), np.ones(3))
+
+
+def test_many_colours_at_once_equal_colour_science_one_by_one():
+    # the batched path (weights of the linear tristimulus integral, then a matrix product) against
+    # colour-science called on each spectrum: random transmittances (fixed seed) and a real dye band
+    from ppp.spectra.perceived import colours_of_transmittances, tristimulus_weights, xyz_of_transmittance
+    wl, _ = tristimulus_weights()
+    rng = np.random.default_rng(20261202)
+    t = rng.uniform(0.0, 1.0, (4, len(wl)))
+    band = Sticks([float(nm_to_ev(480.0))], [1.0])
+    t = np.vstack([t, transmittance(epsilon(HC_EV_NM / wl, band, LineShape()), 5e-5, 1.0)])
+    many = colours_of_transmittances(t)
+    for k in range(len(t)):
+        one = colour_from_xyz(xyz_of_transmittance(wl, t[k]))
+        np.testing.assert_allclose(many["xyz"][k], one.xyz, rtol=1e-12, atol=1e-12)
+        np.testing.assert_allclose(many["lab"][k], one.lab, rtol=1e-12, atol=1e-10)
+        assert many["hex"][k] == one.hex and bool(many["out_of_gamut"][k]) == one.out_of_gamut

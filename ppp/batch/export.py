@@ -7,11 +7,14 @@ from __future__ import annotations
 
 import csv
 import math
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import InputError, StorageError
+from ..spectra import lineshapes, perceived
+from ..units import HC_EV_NM
 from . import schema as S
 from .reader import ResultsFile
 
@@ -21,6 +24,9 @@ from .reader import ResultsFile
 COLUMNS = ("key", "name", "input_index", "source", "status", "error_kind", "error_message", "smiles",
            "canonical_smiles", "n_chromophores", "n_centres", "n_electrons", "homo_ev", "lumo_ev",
            "s1_ev", "s1_nm", "s1_f", "t1_ev", "t1_nm", "bright_ev", "bright_nm", "bright_f", "warnings")
+#: columns added by ``colour``: the predicted colour of the molecule's solution (sRGB hex of the
+#: transmitted D65 light, CIE L*a*b*), from its stored singlets broadened as ``ppp spectrum`` does
+COLOUR_COLUMNS = ("colour_hex", "colour_L_star", "colour_a_star", "colour_b_star")
 STATUS_FILTERS = ("all", "ok", "failed")
 TABLES = ("molecules", "states")
 #: columns of the states export: the molecule's key and name, then the stored state columns
@@ -34,7 +40,55 @@ _TEXT = set(S.MOLECULE_TEXT)
 _STATE_TEXT = {"key", "name", "state", "dominant"}
 
 
-def _slices(rf: ResultsFile, status: str, rows: int):
+@dataclass(frozen=True)
+class ColourSample:
+    """How a molecule's stored singlets become a colour: band shape and optional vibronic progression as
+    in ``ppp spectrum``, and the solution (molar concentration, M; cell path length, cm)."""
+
+    shape: lineshapes.LineShape = field(default_factory=lineshapes.LineShape)
+    progression: lineshapes.Progression | None = None
+    concentration_m: float = perceived.DEFAULT_CONCENTRATION_M
+    path_cm: float = perceived.DEFAULT_PATH_CM
+
+
+#: molecules whose transmittance spectra are held at once while colouring (bounds memory: 421 floats each)
+_COLOUR_BLOCK = 4096
+
+
+def _colours(rf: ResultsFile, start: int, stop: int, rows: np.ndarray, sample: ColourSample) -> dict:
+    """COLOUR_COLUMNS of molecules ``start + rows``; empty / NaN for a molecule without singlets."""
+    wl, _ = perceived.tristimulus_weights()
+    grid = HC_EV_NM / wl
+    count = rf.column("state_count", start, stop).astype(np.int64)
+    first = rf.column("state_start", start, stop).astype(np.int64)
+    out = {"colour_hex": [], "colour_L_star": [], "colour_a_star": [], "colour_b_star": []}
+    for b in range(0, len(rows), _COLOUR_BLOCK):
+        block = rows[b:b + _COLOUR_BLOCK]
+        trans = np.ones((len(block), len(wl)))
+        empty = np.zeros(len(block), dtype=bool)
+        for j, r in enumerate(block.tolist()):
+            s0, s1 = int(first[r]), int(first[r] + count[r])
+            singlet = rf.states("multiplicity", s0, s1) == 1
+            if not singlet.any():
+                empty[j] = True
+                continue
+            sticks = lineshapes.Sticks(rf.states("energy_ev", s0, s1)[singlet],
+                                       rf.states("oscillator_strength", s0, s1)[singlet])
+            eps = lineshapes.epsilon(grid, sticks, sample.shape, sample.progression)
+            trans[j] = perceived.transmittance(eps, sample.concentration_m, sample.path_cm)
+        col = perceived.colours_of_transmittances(trans)
+        lab = col["lab"]
+        lab[empty] = np.nan
+        out["colour_hex"] += ["" if e else h for e, h in zip(empty.tolist(), col["hex"].tolist())]
+        out["colour_L_star"].append(lab[:, 0])
+        out["colour_a_star"].append(lab[:, 1])
+        out["colour_b_star"].append(lab[:, 2])
+    for k in ("colour_L_star", "colour_a_star", "colour_b_star"):
+        out[k] = np.concatenate(out[k]) if out[k] else np.zeros(0)
+    return out
+
+
+def _slices(rf: ResultsFile, status: str, rows: int, colour: ColourSample | None = None):
     n = rf.n_rows
     for start in range(0, n, rows):
         stop = min(start + rows, n)
@@ -51,6 +105,8 @@ def _slices(rf: ResultsFile, status: str, rows: int):
                 out[name] = [v for v, k in zip(vals, keep) if k]
             else:
                 out[name] = rf.column(name, start, stop)[keep]
+        if colour is not None:
+            out.update(_colours(rf, start, stop, np.flatnonzero(keep), colour))
         yield out
 
 
@@ -104,11 +160,14 @@ def _cell(v) -> str:
 
 
 def export(path: str | Path, out: str | Path, fmt: str | None = None, status: str = "all",
-           overwrite: bool = False, rows: int = 65536, table: str = "molecules") -> int:
+           overwrite: bool = False, rows: int = 65536, table: str = "molecules",
+           colour: ColourSample | None = None) -> int:
     """Write the molecules table of ``path`` to ``out`` (CSV, or Parquet when ``fmt`` or the suffix says
     so), or with ``table="states"`` its states, one row per state (:data:`STATE_EXPORT`; only molecules
     that were computed have states, so ``status`` must stay "all" or "ok"). Returns the number of rows
-    written. NaN (no such state, an undefined polarization) becomes an empty CSV cell / a null."""
+    written. NaN (no such state, an undefined polarization) becomes an empty CSV cell / a null.
+    ``colour``: add :data:`COLOUR_COLUMNS` to the molecules table (0.1 s once, then about 0.1 ms per
+    molecule)."""
     out = Path(out)
     if status not in STATUS_FILTERS:
         raise InputError(f"status filter must be one of {', '.join(STATUS_FILTERS)}, got '{status}'")
@@ -116,11 +175,13 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
         raise InputError(f"table must be one of {', '.join(TABLES)}, got '{table}'")
     if table == "states" and status == "failed":
         raise InputError("failed molecules have no states; export the molecules table to see why they failed")
-    columns = STATE_EXPORT if table == "states" else COLUMNS
-    text_cols = _STATE_TEXT if table == "states" else _TEXT | {"status"}
+    if colour is not None and table == "states":
+        raise InputError("the colour belongs to a molecule: export the molecules table to get it")
+    columns = STATE_EXPORT if table == "states" else COLUMNS + (COLOUR_COLUMNS if colour is not None else ())
+    text_cols = _STATE_TEXT if table == "states" else _TEXT | {"status", "colour_hex"}
 
     def slices(rf):
-        return _state_slices(rf, rows) if table == "states" else _slices(rf, status, rows)
+        return _state_slices(rf, rows) if table == "states" else _slices(rf, status, rows, colour)
 
     fmt = fmt or ("parquet" if out.suffix.lower() in (".parquet", ".pq") else "csv")
     if fmt not in ("csv", "parquet"):

@@ -21,7 +21,7 @@ def add_arguments(p) -> None:
 def main(args) -> int:
     import numpy as np
 
-    from ..batch.export import export
+    from ..batch.export import ColourSample, export
     from ..batch.reader import ResultsFile
     from ..batch.runner import BatchConfig, run_batch
 
@@ -38,17 +38,21 @@ def main(args) -> int:
     print("\n".join(summary.lines()))
     if not summary.complete:
         return 130 if summary.interrupted else 1
-    n = export(out, csv_path, overwrite=True)
-    print(f"wrote {n} rows to {csv_path} (open it in a spreadsheet; failed rows carry their reason)")
+    n = export(out, csv_path, overwrite=True, colour=ColourSample())
+    print(f"wrote {n} rows to {csv_path} (open it in a spreadsheet; failed rows carry their reason; "
+          f"colour_*: predicted colour of a 5e-5 M solution, 1 cm)")
     with ResultsFile(out) as rf:
         names = rf.text("name")
         nm, f = rf.column("bright_nm"), rf.column("bright_f")
     visible = np.flatnonzero((nm >= 400) & (nm <= 700))
     top = visible[np.argsort(-f[visible], kind="stable")][:8]
     if len(top):
+        import csv
+        with open(csv_path, newline="", encoding="utf-8") as fh:
+            hexes = {row["name"]: row["colour_hex"] for row in csv.DictReader(fh)}
         print("strongest computed absorbers in the visible (400-700 nm):")
         for i in top:
-            print(f"  {names[i]:<45s} {nm[i]:6.0f} nm  f = {f[i]:.2f}")
+            print(f"  {names[i]:<45s} {nm[i]:6.0f} nm  f = {f[i]:.2f}  {hexes.get(names[i], '')}")
     return 0
 
 

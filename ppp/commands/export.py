@@ -1,6 +1,9 @@
 """``ppp export``: the molecules table of a results file (S1, T1, brightest band) as CSV or Parquet."""
 from __future__ import annotations
 
+from ..spectra import perceived
+from .spectrum import add_band_arguments, add_sample_arguments, band_from_args
+
 NAME = "export"
 HELP = ("write the molecules table of a batch results file (S1, T1, brightest band), or all its states, "
         "to CSV or Parquet")
@@ -11,17 +14,26 @@ def add_arguments(p) -> None:
     p.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="output file; .parquet writes Parquet (needs pyarrow), anything else CSV")
     p.add_argument("--status", choices=("all", "ok", "failed"), default="all", help="which molecules (all)")
+    p.add_argument("--colour", action="store_true",
+                   help="add the predicted colour of each molecule's solution (sRGB hex, CIE L*a*b*) from its "
+                        "broadened singlets; band shape and sample as for 'ppp spectrum'")
     p.add_argument("--states", action="store_true",
                    help="one row per computed state (energy, wavelength, f, transition dipole, polarization, "
                         "dominant configuration) instead of one per molecule")
     p.add_argument("--format", choices=("csv", "parquet"), help="output format (default: from the file name)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
+    add_band_arguments(p)
+    add_sample_arguments(p, perceived.DEFAULT_CONCENTRATION_M)
 
 
 def main(args) -> int:
-    from ..batch.export import export
+    from ..batch.export import ColourSample, export
     table = "states" if args.states else "molecules"
+    colour = None
+    if args.colour:
+        shape, prog = band_from_args(args)
+        colour = ColourSample(shape, prog, args.concentration, args.path_length)
     n = export(args.results, args.output, fmt=args.format, status=args.status, overwrite=args.overwrite,
-               table=table)
+               table=table, colour=colour)
     print(f"wrote {n} {'state' if args.states else 'molecule'}(s) to {args.output}")
     return 0

@@ -9,6 +9,7 @@ out of gamut and clipped for the hex code.
 """
 from __future__ import annotations
 
+import functools
 import math
 import warnings
 from dataclasses import dataclass
@@ -124,6 +125,43 @@ def colour_of_solution(epsilon_at, concentration_m: float = DEFAULT_CONCENTRATIO
     wl = np.arange(COLOUR_RANGE_NM[0], COLOUR_RANGE_NM[1] + 0.5 * step_nm, step_nm)
     t = transmittance(epsilon_at(wl), concentration_m, path_cm)
     return colour_from_xyz(xyz_of_transmittance(wl, t))
+
+
+@functools.lru_cache(maxsize=4)
+def tristimulus_weights(step_nm: float = 1.0) -> tuple[np.ndarray, np.ndarray]:
+    """(wavelengths (n,) nm over :data:`COLOUR_RANGE_NM`, weights (3, n)) with XYZ = weights @ T for a
+    transmittance T sampled on those wavelengths: :func:`xyz_of_transmittance` is linear in T (tables
+    method and integration alike), so its weights are its values for the unit spectra, computed by
+    colour-science in one call (``colour.msds_to_XYZ``; about 0.1 s, once per process); then the colour
+    of many spectra is one matrix product (:func:`colours_of_transmittances`)."""
+    import colour
+
+    wl = np.arange(COLOUR_RANGE_NM[0], COLOUR_RANGE_NM[1] + 0.5 * step_nm, step_nm)
+    units = colour.MultiSpectralDistributions(np.eye(len(wl)), wl)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", colour.utilities.ColourRuntimeWarning)
+        w = np.asarray(colour.msds_to_XYZ(units, colour.MSDS_CMFS[_OBSERVER], colour.SDS_ILLUMINANTS["D65"]),
+                       dtype=float)
+    return wl, np.ascontiguousarray(w.T)
+
+
+def colours_of_transmittances(transmittances: np.ndarray, step_nm: float = 1.0) -> dict[str, np.ndarray]:
+    """Colours of many samples at once: ``transmittances`` (m, n) on the grid of
+    :func:`tristimulus_weights`. Returns arrays: "xyz" (m, 3) on the Y = 100 scale, "lab" (m, 3), "srgb"
+    (m, 3) before clipping, "hex" (m,) strings of the clipped sRGB, "out_of_gamut" (m,) bool, as
+    :func:`colour_from_xyz` gives for one."""
+    import colour
+
+    _, w = tristimulus_weights(step_nm)
+    t = np.atleast_2d(np.asarray(transmittances, dtype=float))
+    xyz = t @ w.T
+    white = colour.CCS_ILLUMINANTS[_OBSERVER]["D65"]
+    lab = np.asarray(colour.XYZ_to_Lab(xyz / 100.0, illuminant=white), dtype=float).reshape(-1, 3)
+    rgb = np.asarray(colour.XYZ_to_sRGB(xyz / 100.0, illuminant=white), dtype=float).reshape(-1, 3)
+    oog = np.any(rgb < -1e-3, axis=1) | np.any(rgb > 1.0 + 1e-3, axis=1)
+    byte = np.rint(255.0 * np.clip(rgb, 0.0, 1.0)).astype(int)
+    hexes = np.array(["#%02x%02x%02x" % tuple(b) for b in byte.tolist()], dtype=object)
+    return {"xyz": xyz, "lab": lab, "srgb": rgb, "hex": hexes, "out_of_gamut": oog}
 
 
 def colour_of_absorbance(wavelength_nm: np.ndarray, absorbance: np.ndarray, step_nm: float = 1.0) -> PerceivedColour:
