@@ -9,7 +9,7 @@ import pytest
 
 from ppp.errors import InputError
 from ppp.spectra.measured import MeasuredSpectrumError, read_csv, read_jcamp, read_measured, to_epsilon
-from ppp.units import EV_CM1, HC_EV_NM
+from ppp.units import HC_EV_NM
 
 
 def known_curve():
