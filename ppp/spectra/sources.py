@@ -173,11 +173,14 @@ def from_batch(path: str | Path, molecule: str | None = None) -> SpectrumSource:
             hits = np.flatnonzero(rf.column("input_index") == int(molecule) - 1)
             if hits.size == 0:
                 raise InputError(f"no molecule with input record number {molecule} in '{path}' "
-                                 f"(it holds {n} of the input's records)")
+                                 f"(it holds {n} of the input's {rf.attrs.get('expected_rows', '?')} records"
+                                 f"{'' if rf.complete else '; run the batch again to finish it'})")
             row = int(hits[0])
         else:
+            more = "" if rf.complete else (f"; the file is not complete ({n} of {rf.attrs.get('expected_rows', '?')} "
+                                            f"inputs): run the batch again to finish it")
             raise InputError(f"no molecule '{molecule}' in '{path}' (neither an ID nor a name of its {n} rows; "
-                             f"e.g. {', '.join(keys[:3])})")
+                             f"e.g. {', '.join(keys[:3])}){more}")
         label = names[row] or keys[row]
         if int(rf.column("status", row, row + 1)[0]) != S.OK:
             kind = rf.text("error_kind", row, row + 1)[0]
