@@ -207,8 +207,8 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
             writer = None
             try:
                 for part in slices(rf):
-                    chunk = pa.table({k: (pa.array(v, from_pandas=True) if not isinstance(v, list) else pa.array(v, pa.string()))
-                                      for k, v in part.items()})
+                    chunk = pa.table({k: (pa.array(v, from_pandas=True) if not isinstance(v, list)
+                                          else pa.array(v, pa.string())) for k, v in part.items()})
                     if writer is None:
                         writer = pq.ParquetWriter(tmp, chunk.schema)
                     writer.write_table(chunk)

@@ -45,7 +45,8 @@ def main(args) -> int:
 
 def _main(args, timer) -> int:
     options = options_from(args)
-    if args.save and args.file and Path(args.save).exists() and Path(args.save).resolve() == Path(args.file).resolve():
+    if args.save and args.file and Path(args.save).exists() \
+            and Path(args.save).resolve() == Path(args.file).resolve():
         raise StorageError(f"--save '{args.save}' would replace the input file; choose another name")
     if args.save and Path(args.save).exists() and not args.overwrite:
         raise StorageError(f"'{args.save}' exists; add --overwrite to replace it")

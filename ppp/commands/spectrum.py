@@ -22,8 +22,11 @@ DEFAULT_RANGE = {"wavelength": (200.0, 800.0), "energy": (1.5, 6.5), "wavenumber
 
 def add_source_arguments(p) -> None:
     p.add_argument("smiles", nargs="?", metavar="SMILES", help="molecule to compute")
-    p.add_argument("--record", metavar="FILE.h5", help="take the states from a 'ppp run --save' record or a 'ppp batch' results file instead")
-    p.add_argument("--molecule", metavar="NAME|N", help="which molecule of the record (name or 1-based number; for a batch file its ID, name or input record number)")
+    p.add_argument("--record", metavar="FILE.h5",
+                   help="take the states from a 'ppp run --save' record or a 'ppp batch' results file instead")
+    p.add_argument("--molecule", metavar="NAME|N",
+                   help="which molecule of the record (name or 1-based number; in a batch file its ID, name or "
+                        "input record number)")
     p.add_argument("--name", help="label for titles and files (default: the SMILES or record name)")
 
 
@@ -89,7 +92,8 @@ def band_notes(shape, prog) -> list[str]:
 def add_arguments(p) -> None:
     add_source_arguments(p)
     p.add_argument("--out", "-o", required=True, metavar="PREFIX",
-                   help="output prefix: PREFIX-curve.csv (and .jdx, JCAMP-DX), PREFIX-sticks.csv, PREFIX-spectrum.png/.svg, ...")
+                   help="output prefix: PREFIX-curve.csv (and .jdx, JCAMP-DX), PREFIX-sticks.csv, "
+                        "PREFIX-spectrum.png/.svg, ...")
     p.add_argument("--overwrite", action="store_true", help="allow replacing existing output files")
     p.add_argument("--axis", choices=("wavelength", "energy", "wavenumber"), default="wavelength", help="x axis of the plot and CSV order")
     p.add_argument("--range", nargs=2, type=float, metavar=("LO", "HI"),
@@ -125,8 +129,9 @@ def main(args) -> int:
     grid = _grid_for(args.axis, window)
     src = source_from_args(args)
     prefix = args.out
-    files = {"curve": f"{prefix}-curve.csv", "curve_jcamp": f"{prefix}-curve.jdx", "sticks": f"{prefix}-sticks.csv",
-             "plot_png": f"{prefix}-spectrum.png", "plot_svg": f"{prefix}-spectrum.svg"}
+    files = {"curve": f"{prefix}-curve.csv", "curve_jcamp": f"{prefix}-curve.jdx",
+             "sticks": f"{prefix}-sticks.csv", "plot_png": f"{prefix}-spectrum.png",
+             "plot_svg": f"{prefix}-spectrum.svg"}
     picture_jobs = []
     if args.pictures:
         picture_jobs, pic_files = _plan_pictures(src, args.state, prefix)

@@ -2,10 +2,10 @@
 
 CSV layout (ppp's own, documented in docs/spectra.md): optional comment lines starting with ``#``, one
 header line (up to :data:`HEADER_SEARCH_LINES` title lines above it are skipped), then numbers (up to a
-blank line, after which an instrument's run report is ignored). Columns are separated by commas, semicolons, tabs or (if none of these
-appear in the header) white space. The header names each column as ``quantity (unit)``,
-``quantity [unit]``, ``quantity/unit`` or ``quantity_unit``. The first column naming an axis quantity
-and the first naming an intensity quantity are used; other columns are ignored.
+blank line, after which an instrument's run report is ignored). Columns are separated by commas,
+semicolons, tabs or (if none of these appear in the header) white space. The header names each column as
+``quantity (unit)``, ``quantity [unit]``, ``quantity/unit`` or ``quantity_unit``. The first column
+naming an axis quantity and the first naming an intensity quantity are used; other columns are ignored.
 
     axis:       wavelength (nm) | wavenumber (cm-1) | energy (eV)
     intensity:  absorbance | epsilon (M-1 cm-1) | log epsilon
