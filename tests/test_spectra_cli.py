@@ -97,6 +97,26 @@ def test_spectrum_from_batch_results_equals_fresh_computation(tmp_path, capsys):
         assert len(err.splitlines()) == 1 and all(w in err for w in words), err
 
 
+def test_overlay_of_several_molecules_equals_their_single_spectra(tmp_path, capsys):
+    # law of the overlay: each column of the combined table is that molecule's own spectrum, and each
+    # colour that of its own run
+    mols = [DYE, "C=CC=CC=C"]
+    assert main(["spectrum", *mols, "--out", str(tmp_path / "ov"), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    table = np.loadtxt(tmp_path / "ov-curves.csv", delimiter=",", comments="#", skiprows=4)
+    for k, smi in enumerate(mols):
+        assert main(["spectrum", smi, "--out", str(tmp_path / f"one{k}"), "--json"]) == 0
+        one = json.loads(capsys.readouterr().out)
+        single = np.loadtxt(tmp_path / f"one{k}-curve.csv", delimiter=",", comments="#", skiprows=4)
+        assert table[:, :3] == pytest.approx(single[:, :3], rel=1e-9)
+        assert table[:, 3 + k] == pytest.approx(single[:, 3], rel=1e-5, abs=1e-9)  # both printed to 6 digits
+        assert doc["molecules"][k]["colour"]["hex"] == one["colour"]["hex"]
+    assert _png_ok(tmp_path / "ov-overlay.png")
+    # pictures are drawn for one molecule at a time; a record needs one --molecule per curve
+    assert main(["spectrum", *mols, "--out", str(tmp_path / "p"), "--pictures"]) == 1
+    assert "one molecule at a time" in capsys.readouterr().err
+
+
 def test_compare_recovers_a_known_shift(tmp_path, capsys):
     # synthetic "measured" spectrum from the molecule's own computed bands, shifted by -0.15 eV, scaled,
     # width 0.38 eV: the fit must return these (law of the fit, not a measurement)

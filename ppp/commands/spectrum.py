@@ -20,13 +20,19 @@ DEFAULT_RANGE = {"wavelength": (200.0, 800.0), "energy": (1.5, 6.5), "wavenumber
 
 # --- options shared with ``ppp compare`` -------------------------------------------------------------
 
-def add_source_arguments(p) -> None:
-    p.add_argument("smiles", nargs="?", metavar="SMILES", help="molecule to compute")
+def add_source_arguments(p, several: bool = False) -> None:
+    """SMILES / --record / --molecule / --name; ``several``: more than one molecule may be given (each
+    SMILES, each --molecule), for an overlay."""
+    if several:
+        p.add_argument("smiles", nargs="*", metavar="SMILES",
+                       help="molecule(s) to compute; several are drawn as an overlay")
+    else:
+        p.add_argument("smiles", nargs="?", metavar="SMILES", help="molecule to compute")
     p.add_argument("--record", metavar="FILE.h5",
                    help="take the states from a 'ppp run --save' record or a 'ppp batch' results file instead")
-    p.add_argument("--molecule", metavar="NAME|N",
+    p.add_argument("--molecule", metavar="NAME|N", action="append" if several else "store",
                    help="which molecule of the record (name or 1-based number; in a batch file its ID, name or "
-                        "input record number)")
+                        "input record number)" + ("; repeat it for an overlay" if several else ""))
     p.add_argument("--name", help="label for titles and files (default: the SMILES or record name)")
 
 
@@ -64,18 +70,30 @@ def band_from_args(args) -> tuple[lineshapes.LineShape, lineshapes.Progression |
     return lineshapes.LineShape(args.shape, width, args.lorentz_share), prog
 
 
-def source_from_args(args) -> sources.SpectrumSource:
-    if args.record and args.smiles:
+def sources_from_args(args) -> list[sources.SpectrumSource]:
+    """The molecules named on the command line: each SMILES computed, or each --molecule of --record."""
+    smiles = [args.smiles] if isinstance(args.smiles, str) else list(args.smiles or [])
+    picks = args.molecule if isinstance(args.molecule, list) else [args.molecule]
+    if args.record and smiles:
         raise InputError("give a SMILES or --record, not both")
     if args.record:
-        src = sources.from_record(args.record, args.molecule)
-    elif args.smiles:
+        out = [sources.from_record(args.record, m) for m in picks]
+    elif smiles:
         from ..driver import compute
-        src = sources.from_result(compute(args.smiles, name=args.name, options=options_from(args)))
+        options = options_from(args)
+        out = [sources.from_result(compute(s, name=args.name if len(smiles) == 1 else None, options=options))
+               for s in smiles]
     else:
         raise InputError("nothing to do: give a SMILES or --record FILE.h5")
     if args.name:
-        src = sources.SpectrumSource(args.name, src.smiles, src.sticks, src.chromophores, src.warnings)
+        if len(out) > 1:
+            raise InputError("--name labels one molecule; an overlay takes the molecules' own names")
+        out = [sources.SpectrumSource(args.name, out[0].smiles, out[0].sticks, out[0].chromophores, out[0].warnings)]
+    return out
+
+
+def source_from_args(args) -> sources.SpectrumSource:
+    (src,) = sources_from_args(args)
     return src
 
 
@@ -90,7 +108,7 @@ def band_notes(shape, prog) -> list[str]:
 # --- the command ---------------------------------------------------------------------------------------
 
 def add_arguments(p) -> None:
-    add_source_arguments(p)
+    add_source_arguments(p, several=True)
     p.add_argument("--out", "-o", required=True, metavar="PREFIX",
                    help="output prefix: PREFIX-curve.csv (and .jdx, JCAMP-DX), PREFIX-sticks.csv, "
                         "PREFIX-spectrum.png/.svg, ...")
@@ -127,7 +145,13 @@ def main(args) -> int:
     shape, prog = band_from_args(args)
     window = tuple(args.range) if args.range else DEFAULT_RANGE[args.axis]
     grid = _grid_for(args.axis, window)
-    src = source_from_args(args)
+    srcs = sources_from_args(args)
+    if len(srcs) > 1:
+        from .overlay import overlay_main
+        if args.pictures or args.state is not None:
+            raise InputError("orbital pictures are drawn for one molecule at a time; leave out --pictures")
+        return overlay_main(args, srcs, shape, prog, grid, window, band_notes(shape, prog))
+    (src,) = srcs
     prefix = args.out
     files = {"curve": f"{prefix}-curve.csv", "curve_jcamp": f"{prefix}-curve.jdx",
              "sticks": f"{prefix}-sticks.csv", "plot_png": f"{prefix}-spectrum.png",

@@ -151,6 +151,43 @@ def plot_spectrum(curve, sticks, paths, axis: str = "wavelength", window=None, t
     _save(fig, paths)
 
 
+def plot_overlay(curves, names, colours, paths, axis: str = "wavelength", window=None, title: str = "",
+                 subtitle: str = "") -> None:
+    """Several simulated curves (eps) over each other, a colour swatch of each solution in the legend.
+
+    curves, names, colours : one each per molecule (colours: :class:`PerceivedColour`); window : (lo, hi)
+    in axis units.
+    """
+    from matplotlib.patches import Patch
+
+    fig, ax = plt.subplots(figsize=(8.0, 4.8))
+    xs = [to_axis(c.energy_ev, axis) for c in curves]
+    lo, hi = (float(min(np.min(x) for x in xs)), float(max(np.max(x) for x in xs))) if window is None \
+        else (min(window), max(window))
+    ymax = max(float(np.max(c.epsilon[(x >= lo) & (x <= hi)], initial=0.0)) for c, x in zip(curves, xs)) or 1.0
+    div, ylabel = _eps_scale(ymax)
+    cycle = plt.rcParams["axes.prop_cycle"].by_key().get("color", [SIM_COLOUR])
+    handles = []
+    for k, (c, x, name, col) in enumerate(zip(curves, xs, names, colours)):
+        line, = ax.plot(x, c.epsilon / div, color=cycle[k % len(cycle)], lw=1.6, zorder=3,
+                        ls=("-", "--", ":", "-.")[(k // len(cycle)) % 4])
+        handles.append(line)
+        handles.append(Patch(facecolor=col.hex, edgecolor="#555555", lw=0.6, label=f"{name}  {col.hex}"))
+    ax.legend(handles=[h for pair in zip(handles[::2], handles[1::2]) for h in pair],
+              labels=[lab for name, col in zip(names, colours) for lab in (name, f"solution {col.hex}")],
+              fontsize=7.5, ncol=2, loc="upper right", frameon=False)
+    ax.set_xlabel(_XLABEL[axis])
+    ax.set_ylabel(ylabel)
+    ax.set_xlim(lo, hi)
+    ax.set_ylim(0, ymax / div * (1.25 + 0.09 * len(curves)))
+    _secondary_energy_axis(ax, axis)
+    ax.set_title(title, fontsize=11, loc="left", pad=24 if axis == "wavelength" else 6)
+    ax.grid(alpha=0.25, lw=0.5)
+    bottom = _footnote(fig, subtitle)
+    fig.tight_layout(rect=(0, bottom, 1, 1))
+    _save(fig, paths)
+
+
 def plot_compare(meas, sim_raw, sim_fit, fit, paths, axis: str = "wavelength", title: str = "",
                  colours=(), subtitle: str = "") -> None:
     """Measured points, unshifted and fitted simulation, residual panel, fit box and swatches.
