@@ -118,30 +118,36 @@ def main(argv=None) -> int:
         training = prov.get("reference_sha256") == ref.sha256
         summaries.append((_label(set_name, vb, c, solv, resp), evaluation.by_class(), training, prov, t_prep, t_eval))
 
+    # columns: the usual classes found in this reference, then any others it has (a lab's own reference,
+    # or molecules of no class: "other"), then all rows
+    present = set().union(*(by.keys() for _, by, *_ in summaries))
+    order = ([k for k in CLASS_ORDER if k in present and k != "all"] + sorted(present - set(CLASS_ORDER))
+             + ["all"])
     print("\nMean absolute error, eV (nm), per class; n = rows, x = rows without a matched state")
-    head = f"| {'configuration':<38} | " + " | ".join(f"{k:>13}" for k in CLASS_ORDER) + " |"
+    head = f"| {'configuration':<38} | " + " | ".join(f"{k:>13}" for k in order) + " |"
     print(head)
-    print("|" + "-" * 40 + "|" + "|".join("-" * 15 for _ in CLASS_ORDER) + "|")
+    print("|" + "-" * 40 + "|" + "|".join("-" * 15 for _ in order) + "|")
     counts = None
     for label, by, training, prov, *_ in summaries:
         cells = []
-        for k in CLASS_ORDER:
+        for k in order:
             s = by.get(k)
             cells.append(f"{s.mae_ev:.3f} ({s.mae_nm:4.0f})" + ("x" * min(s.n_failed, 1)) if s else "-")
         tag = " [training]" if training else ""
         print(f"| {label + tag:<38} | " + " | ".join(f"{c:>13}" for c in cells) + " |")
         counts = by
-    print("| n rows" + " " * 33 + "| " + " | ".join(f"{counts[k].n:>13}" for k in CLASS_ORDER) + " |")
+    print("| n rows" + " " * 33 + "| " + " | ".join(f"{counts[k].n if k in counts else 0:>13}" for k in order)
+          + " |")
     for label, by, training, prov, *_ in summaries:
         if training and "cross_validated_mae_ev" in prov:
             cv = prov["cross_validated_mae_ev"]
             print(f"| {label.split()[0] + ' cross-validated (provenance)':<38} | " +
-                  " | ".join(f"{cv[k]:>13.3f}" if k in cv else f"{'-':>13}" for k in CLASS_ORDER) + " |")
+                  " | ".join(f"{cv[k]:>13.3f}" if k in cv else f"{'-':>13}" for k in order) + " |")
             break
     print("\nMean signed error (computed - measured), eV, per class (> 0: predicted too blue)")
     for label, by, *_ in summaries:
         print(f"| {label:<38} | " + " | ".join(f"{by[k].mean_signed_ev:>+13.3f}" if k in by else f"{'-':>13}"
-                                              for k in CLASS_ORDER) + " |")
+                                              for k in order) + " |")
     print("\nfailures (unmatched or errors) per configuration:")
     for label, by, *_ in summaries:
         print(f"  {label}: {by['all'].n_failed}")

@@ -144,3 +144,20 @@ def test_alkyl_shift_lowers_the_error(ref, classic_errors, tmp_path):
         assert classic_errors[cls].mae_ev < off[cls].mae_ev, cls
     # hydrocarbons have no amino nitrogen: unchanged
     assert classic_errors["hydrocarbon"].mae_ev == pytest.approx(off["hydrocarbon"].mae_ev, abs=1e-9)
+
+
+def test_accuracy_benchmark_takes_a_labs_own_reference(tmp_path, capsys):
+    # the benchmark on a reference of other classes and fewer columns (SMILES and maxima only, values from
+    # memory as in the shipped set) prints its table for the classes the file has, not a traceback
+    import sys
+    sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+    from benchmarks import accuracy
+    lab = tmp_path / "lab.csv"
+    lab.write_text("smiles,lambda_nm\nC=CC=CC=C,258\nc1ccc(cc1)/C=C/c1ccccc1,295\n"
+                   "CN(C)c1ccc(cc1)/N=N/c1ccccc1,408\nCC1=CC(=O)c2ccccc2C1=O,330\n")
+    assert accuracy.main(["--reference", str(lab), "--quick", "--solvents", "gas", "--responses", "cis",
+                          "--sets", "classic"]) == 0
+    out = capsys.readouterr().out
+    header = next(ln for ln in out.splitlines() if ln.startswith("| configuration"))
+    assert [c.strip() for c in header.split("|")[2:-1]] == ["polyene", "hydrocarbon", "azo", "carbonyl", "all"]
+    assert "| n rows" in out
