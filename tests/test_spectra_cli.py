@@ -115,6 +115,8 @@ def test_overlay_of_several_molecules_equals_their_single_spectra(tmp_path, caps
     # pictures are drawn for one molecule at a time; a record needs one --molecule per curve
     assert main(["spectrum", *mols, "--out", str(tmp_path / "p"), "--pictures"]) == 1
     assert "one molecule at a time" in capsys.readouterr().err
+    assert main(["spectrum", DYE, "--molecule", "2", "--out", str(tmp_path / "q")]) == 1
+    assert "--record" in capsys.readouterr().err
 
 
 def test_compare_recovers_a_known_shift(tmp_path, capsys):

@@ -76,6 +76,8 @@ def sources_from_args(args) -> list[sources.SpectrumSource]:
     picks = args.molecule if isinstance(args.molecule, list) else [args.molecule]
     if args.record and smiles:
         raise InputError("give a SMILES or --record, not both")
+    if not args.record and any(m is not None for m in picks):
+        raise InputError("--molecule chooses from a --record file; give SMILES directly otherwise")
     if args.record:
         out = [sources.from_record(args.record, m) for m in picks]
     elif smiles:
