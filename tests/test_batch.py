@@ -70,6 +70,19 @@ def test_csv_from_a_spreadsheet_byte_order_mark_and_semicolons(tmp_path):
     assert inputs.header_delimiter("smiles") == ","  # one column
 
 
+def test_csv_smiles_column_of_database_exports(tmp_path):
+    # column names as public database exports write them (common practice): the one column named like
+    # SMILES is used; of a canonical and an isomeric one, the isomeric (E/Z kept)
+    p = tmp_path / "pub.csv"
+    p.write_text("CID,CanonicalSMILES,IsomericSMILES\n1,CC=CC,C/C=C/C\n")
+    assert [i.payload for i in inputs.read_items(p)] == ["C/C=C/C"]
+    p.write_text("Molecule ChEMBL ID;Name;Smiles\nCHEMBL1;butadiene;C=CC=C\n")
+    assert [(i.name, i.payload) for i in inputs.read_items(p)] == [("butadiene", "C=CC=C")]
+    p.write_text("smiles_a,smiles_b\nC=C,C=CC=C\n")  # two candidates, neither preferred: ask
+    with pytest.raises(InputError, match="--smiles-column"):
+        list(inputs.read_items(p))
+
+
 def test_input_folder_and_output_over_input_are_refused(tmp_path):
     folder = tmp_path / "lib.smi"
     folder.mkdir()

@@ -146,6 +146,13 @@ def _pick_column(header: list[str], wanted: str | None, defaults: tuple[str, ...
     for d in defaults:
         if d in lower:
             return lower.index(d)
+    if required and what == "SMILES":
+        # exports of the public databases name it otherwise ("Smiles", "CanonicalSMILES", "IsomericSMILES"):
+        # one column whose name contains "smiles" is taken; with several, the isomeric one (it keeps E/Z)
+        hits = [k for k, h in enumerate(lower) if "smiles" in h]
+        iso = [k for k in hits if "isomeric" in lower[k]]
+        if len(hits) == 1 or len(iso) == 1:
+            return hits[0] if len(hits) == 1 else iso[0]
     if required:
         raise InputError(f"'{path.name}' has no {what} column named {' or '.join(defaults)}; "
                          f"name it with --smiles-column (columns: {', '.join(header)})")
