@@ -24,7 +24,8 @@ def add_input_arguments(p) -> None:
     g = p.add_argument_group("input")
     g.add_argument("--format", choices=("smiles", "csv", "tsv", "sdf"),
                    help="input format (default: from the file name; .gz is looked through)")
-    g.add_argument("--smiles-column", metavar="NAME", help="CSV column holding the SMILES (default: 'smiles', else the one column named like it)")
+    g.add_argument("--smiles-column", metavar="NAME",
+                   help="CSV column holding the SMILES (default: 'smiles', else the one column named like it)")
     g.add_argument("--id-column", metavar="NAME",
                    help="CSV column (or SDF data field) holding the molecule ID (default: 'id' or 'name' "
                         "column; SDF title line)")
