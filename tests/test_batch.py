@@ -16,6 +16,7 @@ from batch_helpers import BAD_LINES, assert_same_results, error_rows, n_rows, ru
 
 import ppp
 from ppp.batch import inputs
+from ppp.io.delimited import header_delimiter
 from ppp.batch.export import export
 from ppp.batch.merge import merge
 from ppp.batch.reader import ResultsFile
@@ -67,7 +68,7 @@ def test_csv_from_a_spreadsheet_byte_order_mark_and_semicolons(tmp_path):
     # quoted commas in a ";" file do not count as separators
     p.write_text('name;smiles;comment\nA;C=CC=C;"red, bright"\n')
     assert [(i.name, i.payload) for i in inputs.read_items(p)] == [("A", "C=CC=C")]
-    assert inputs.header_delimiter("smiles") == ","  # one column
+    assert header_delimiter("smiles") == ","  # one column
 
 
 def test_csv_smiles_column_of_database_exports(tmp_path):

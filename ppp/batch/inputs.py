@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import Iterator
 
 from ..errors import InputError
+from ..io.delimited import header_delimiter
 
 FORMATS = ("smiles", "csv", "tsv", "sdf")
 _SUFFIX_FORMAT = {".smi": "smiles", ".smiles": "smiles", ".txt": "smiles", ".ism": "smiles",
@@ -157,27 +158,6 @@ def _pick_column(header: list[str], wanted: str | None, defaults: tuple[str, ...
         raise InputError(f"'{path.name}' has no {what} column named {' or '.join(defaults)}; "
                          f"name it with --smiles-column (columns: {', '.join(header)})")
     return None
-
-
-#: Column separators a ".csv" file may use, in order of preference on a tie: spreadsheet programs set to
-#: a locale with a decimal comma write ";"; "\t" and "|" are other common exports.
-CSV_DELIMITERS = (",", ";", "\t", "|")
-
-
-def header_delimiter(header_line: str) -> str:
-    """Separator of a CSV file judged from its header line: the one of :data:`CSV_DELIMITERS` that
-    occurs most often outside double quotes (",": none occurs, a one-column table). Only the header is
-    looked at: column names never hold SMILES, whose characters could mislead a count over the rows."""
-    outside, quoted = [], False
-    for ch in header_line:
-        if ch == '"':
-            quoted = not quoted
-        elif not quoted:
-            outside.append(ch)
-    text = "".join(outside)
-    counts = [text.count(d) for d in CSV_DELIMITERS]
-    best = max(range(len(CSV_DELIMITERS)), key=lambda i: (counts[i], -i))
-    return CSV_DELIMITERS[best] if counts[best] else ","
 
 
 def _csv_items(fh, path: Path, delimiter: str | None, smiles_column, id_column) -> Iterator[Item]:

@@ -31,8 +31,8 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..batch.inputs import header_delimiter
 from ..errors import InputError, PPPError
+from ..io.delimited import header_delimiter
 from ..results import BRIGHT_F
 from ..units import ev_to_nm, nm_to_ev
 

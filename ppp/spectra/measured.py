@@ -3,7 +3,8 @@
 CSV layout (ppp's own, documented in docs/spectra.md): optional comment lines starting with ``#``, one
 header line (up to :data:`HEADER_SEARCH_LINES` title lines above it are skipped), then numbers (up to a
 blank line, after which an instrument's run report is ignored). Columns are separated by commas,
-semicolons, tabs or (if none of these appear in the header) white space. The header names each column as
+semicolons, tabs or "|" (the one found most often in the header, :mod:`ppp.io.delimited`) or, if none
+of these appear in the header, white space. The header names each column as
 ``quantity (unit)``, ``quantity [unit]``, ``quantity/unit`` or ``quantity_unit``. The first column
 naming an axis quantity and the first naming an intensity quantity are used; other columns are ignored.
 
@@ -27,6 +28,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from ..io.delimited import header_delimiter
 from ..units import EV_CM1, HC_EV_NM
 
 #: Fewest points accepted in a measured spectrum.
@@ -200,7 +202,7 @@ HEADER_SEARCH_LINES = 5
 def _columns_of(header: str):
     """(separator, axis column, axis unit, intensity column, intensity kind) of a header line; the columns
     are None where the header names none. Raises MeasuredSpectrumError for a known name with a bad unit."""
-    sep = next((s for s in (",", ";", "\t") if s in header), None)
+    sep = header_delimiter(header, default=None)
     cells = [c.strip() for c in header.split(sep)] if sep else header.split()
     ix = iy = axis_unit = intensity = None
     for k, col in enumerate(cells):
