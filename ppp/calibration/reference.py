@@ -125,7 +125,7 @@ def load(path: str | Path) -> ReferenceSet:
             raise InputError(f"{where}: lambda_nm and uncertainty_nm must be numbers") from None
         if not (math.isfinite(lam) and 50.0 < lam < 5000.0):
             raise InputError(f"{where}: lambda_nm {lam} outside 50-5000 nm")
-        if not (unc > 0 and math.isfinite(unc)) and unc_text != "nan":
+        if not (unc > 0 and math.isfinite(unc)) and unc_text.lower() != "nan":
             raise InputError(f"{where}: uncertainty_nm must be positive")
         match = val["match"].strip() or "allowed"
         if match not in MATCH_RULES:

@@ -166,9 +166,9 @@ def from_batch(path: str | Path, molecule: str | None = None) -> SpectrumSource:
             row = keys.index(str(molecule))
         elif str(molecule) in names:
             row = names.index(str(molecule))
-        elif sum(k.split(None, 1)[:1] == [str(molecule)] for k in keys) == 1:
+        elif len(by_word := [r for r, k in enumerate(keys) if k.split(None, 1)[:1] == [str(molecule)]]) == 1:
             # the first word of an ID (a SMILES file's "HC-017 DANS" line gives the ID "HC-017 DANS")
-            row = next(r for r, k in enumerate(keys) if k.split(None, 1)[:1] == [str(molecule)])
+            row = by_word[0]
         elif str(molecule).isdigit() and int(molecule) >= 1:
             hits = np.flatnonzero(rf.column("input_index") == int(molecule) - 1)
             if hits.size == 0:
