@@ -167,14 +167,14 @@ def plot_overlay(curves, names, colours, paths, axis: str = "wavelength", window
     ymax = max(float(np.max(c.epsilon[(x >= lo) & (x <= hi)], initial=0.0)) for c, x in zip(curves, xs)) or 1.0
     div, ylabel = _eps_scale(ymax)
     cycle = plt.rcParams["axes.prop_cycle"].by_key().get("color", [SIM_COLOUR])
-    handles = []
-    for k, (c, x, name, col) in enumerate(zip(curves, xs, names, colours)):
+    lines, swatches = [], []
+    for k, (c, x, col) in enumerate(zip(curves, xs, colours)):
         line, = ax.plot(x, c.epsilon / div, color=cycle[k % len(cycle)], lw=1.6, zorder=3,
                         ls=("-", "--", ":", "-.")[(k // len(cycle)) % 4])
-        handles.append(line)
-        handles.append(Patch(facecolor=col.hex, edgecolor="#555555", lw=0.6, label=f"{name}  {col.hex}"))
-    ax.legend(handles=[h for pair in zip(handles[::2], handles[1::2]) for h in pair],
-              labels=[lab for name, col in zip(names, colours) for lab in (name, f"solution {col.hex}")],
+        lines.append(line)
+        swatches.append(Patch(facecolor=col.hex, edgecolor="#555555", lw=0.6))
+    # two legend columns filled column by column: each molecule's line, and beside it its solution colour
+    ax.legend(handles=lines + swatches, labels=list(names) + [f"solution {c.hex}" for c in colours],
               fontsize=7.5, ncol=2, loc="upper right", frameon=False)
     ax.set_xlabel(_XLABEL[axis])
     ax.set_ylabel(ylabel)
