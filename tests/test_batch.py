@@ -305,6 +305,38 @@ def test_export_states_one_row_per_stored_state(library, tmp_path, cli):
     assert (tmp_path / "cli.csv").read_bytes() == out.read_bytes()
 
 
+def test_export_ranking_selects_and_orders_like_sorting_the_full_table(library, tmp_path, cli):
+    # law of a ranking: the same rows and order as sorting the full export (stable, NaN left out)
+    from ppp.batch.export import Selection
+    inp, ref = library
+    full = tmp_path / "all.csv"
+    export(ref, full)
+    with open(full, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    val = np.array([float(r["bright_f"]) if r["bright_f"] else np.nan for r in rows])
+    ok = np.isfinite(val)
+    expect = [rows[i]["key"] for i in np.flatnonzero(ok)[np.argsort(-val[ok], kind="stable")][:5]]
+    out = tmp_path / "top.csv"
+    assert export(ref, out, select=Selection(by="bright_f", top=5)) == 5
+    with open(out, newline="") as fh:
+        assert [r["key"] for r in csv.DictReader(fh)] == expect
+    # smallest first; a band window on the brightest band; the states of the selected molecules, grouped
+    e1 = np.array([float(r["s1_ev"]) if r["s1_ev"] else np.nan for r in rows])
+    low = [rows[i]["key"] for i in np.flatnonzero(np.isfinite(e1))[np.argsort(e1[np.isfinite(e1)], kind="stable")][:3]]
+    st = tmp_path / "st.csv"
+    export(ref, st, table="states", select=Selection(by="s1_ev", ascending=True, top=3))
+    with open(st, newline="") as fh:
+        keys = [r["key"] for r in csv.DictReader(fh)]
+    assert list(dict.fromkeys(keys)) == low and keys == sorted(keys, key=low.index)
+    nm = np.array([float(r["bright_nm"]) if r["bright_nm"] else np.nan for r in rows])
+    lo, hi = np.nanpercentile(nm, 25), np.nanpercentile(nm, 75)
+    band = tmp_path / "band.csv"
+    n = export(ref, band, select=Selection(band_nm=(lo, hi)))
+    assert n == int(np.sum((nm >= lo) & (nm <= hi))) > 0
+    code, _, err = cli("export", ref, "-o", tmp_path / "x.csv", "--by", "colour")
+    assert code == 1 and "cannot rank by 'colour'" in err and "bright_f" in err
+
+
 def test_export_colour_equals_the_spectrum_command(library, tmp_path, cli):
     # the colour column of a molecule is the colour 'ppp spectrum' gives for the same stored states
     import json
@@ -343,6 +375,12 @@ def test_export_parquet_when_pyarrow_is_present(library, tmp_path):
     n = export(ref, tmp_path / "s.parquet", table="states")
     table = pq.read_table(tmp_path / "s.parquet")
     assert table.num_rows == n and table.column("state")[0].as_py() == "S1"
+    from ppp.batch.export import Selection
+    export(ref, tmp_path / "r.parquet", select=Selection(by="bright_f", top=3))
+    table = pq.read_table(tmp_path / "r.parquet")
+    assert table.num_rows == 3 and "_rank" not in table.column_names
+    f = table.column("bright_f").to_pylist()
+    assert f == sorted(f, reverse=True)
 
 
 def test_cli_batch_refuses_a_foreign_file_without_overwrite(tmp_path, cli):

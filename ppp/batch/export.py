@@ -51,6 +51,75 @@ class ColourSample:
     path_cm: float = perceived.DEFAULT_PATH_CM
 
 
+@dataclass(frozen=True)
+class Selection:
+    """Which molecules an export keeps, and in which order (the ranking of a screen).
+
+    by : numeric column of the molecules table to rank by (:data:`RANK_COLUMNS`), best first: largest
+         first, or smallest with ``ascending``; molecules without a value (NaN) are left out. None: file order
+    top : keep only the first ``top`` molecules of that order (None: all)
+    band_nm : keep only molecules whose brightest band (``bright_nm``) lies in [lo, hi] nm
+    """
+
+    by: str | None = None
+    top: int | None = None
+    ascending: bool = False
+    band_nm: tuple[float, float] | None = None
+
+    def __post_init__(self):
+        if self.by is not None and self.by not in RANK_COLUMNS:
+            raise InputError(f"cannot rank by '{self.by}'; numeric columns: {', '.join(RANK_COLUMNS)}")
+        if self.top is not None and not (isinstance(self.top, int) and self.top >= 1):
+            raise InputError(f"top must be a whole number of at least 1, got {self.top!r}")
+        if self.band_nm is not None:
+            lo, hi = self.band_nm
+            if not (0 < lo <= hi and math.isfinite(hi)):
+                raise InputError(f"band window must be 0 < LO <= HI nm, got {lo:g} {hi:g}")
+
+    @property
+    def active(self) -> bool:
+        return self.by is not None or self.top is not None or self.band_nm is not None
+
+
+#: columns a Selection can rank by: the numeric columns of the molecules table
+RANK_COLUMNS = tuple(c for c in COLUMNS if c in dict(S.MOLECULE_NUMERIC) and c not in ("status",))
+
+
+def _ranks(rf: ResultsFile, status: str, sel: Selection) -> np.ndarray:
+    """(n_rows,) position of each molecule in the export (0, 1, ...), -1 for a molecule left out."""
+    st = rf.column("status")
+    keep = np.ones(len(st), bool) if status == "all" else (st == (S.OK if status == "ok" else S.FAILED))
+    if sel.band_nm is not None:
+        nm = rf.column("bright_nm")
+        with np.errstate(invalid="ignore"):
+            keep &= (nm >= sel.band_nm[0]) & (nm <= sel.band_nm[1])
+    idx = np.flatnonzero(keep)
+    if sel.by is not None:
+        v = rf.column(sel.by)[idx].astype(float)
+        idx = idx[np.isfinite(v)]
+        v = v[np.isfinite(v)]
+        idx = idx[np.argsort(v if sel.ascending else -v, kind="stable")]  # ties keep file order
+    if sel.top is not None:
+        idx = idx[:sel.top]
+    rank = np.full(len(st), -1, dtype=np.int64)
+    rank[idx] = np.arange(len(idx))
+    return rank
+
+
+def _in_rank_order(parts: list[dict]) -> list[dict]:
+    """The collected rows of all slices as one part, sorted by their ``_rank`` (stable: the states of one
+    molecule keep their order)."""
+    if not parts:
+        return []
+    whole = {}
+    for k in parts[0]:
+        vals = [p[k] for p in parts]
+        whole[k] = np.concatenate(vals) if isinstance(vals[0], np.ndarray) else [x for v in vals for x in v]
+    order = np.argsort(whole["_rank"], kind="stable")
+    return [{k: (v[order] if isinstance(v, np.ndarray) else [v[i] for i in order.tolist()])
+             for k, v in whole.items()}]
+
+
 #: molecules whose transmittance spectra are held at once while colouring (bounds memory: 421 floats each)
 _COLOUR_BLOCK = 4096
 
@@ -93,12 +162,18 @@ def _colours(rf: ResultsFile, start: int, stop: int, rows: np.ndarray, sample: C
     return out
 
 
-def _slices(rf: ResultsFile, status: str, rows: int, colour: ColourSample | None = None):
+def _slices(rf: ResultsFile, status: str, rows: int, colour: ColourSample | None = None,
+            rank: np.ndarray | None = None):
+    """Molecules table rows, slice by slice; with ``rank`` (:func:`_ranks`) only the molecules it keeps,
+    each part carrying their ranks as ``_rank``."""
     n = rf.n_rows
     for start in range(0, n, rows):
         stop = min(start + rows, n)
         st = rf.column("status", start, stop)
-        keep = np.ones(len(st), bool) if status == "all" else (st == (S.OK if status == "ok" else S.FAILED))
+        if rank is not None:
+            keep = rank[start:stop] >= 0
+        else:
+            keep = np.ones(len(st), bool) if status == "all" else (st == (S.OK if status == "ok" else S.FAILED))
         if not keep.any():
             continue
         out = {}
@@ -112,6 +187,8 @@ def _slices(rf: ResultsFile, status: str, rows: int, colour: ColourSample | None
                 out[name] = rf.column(name, start, stop)[keep]
         if colour is not None:
             out.update(_colours(rf, start, stop, np.flatnonzero(keep), colour))
+        if rank is not None:
+            out["_rank"] = rank[start:stop][keep]
         yield out
 
 
@@ -119,14 +196,18 @@ def _orbital(name: str, k: int) -> str:
     return name if k == 0 else f"{name}{'-' if name == 'H' else '+'}{k}"
 
 
-def _state_slices(rf: ResultsFile, rows: int):
-    """The states of every computed molecule, molecule slice by slice (failed molecules have none)."""
+def _state_slices(rf: ResultsFile, rows: int, rank: np.ndarray | None = None):
+    """The states of every computed molecule, molecule slice by slice (failed molecules have none); with
+    ``rank`` (:func:`_ranks`) only those of the molecules it keeps, carrying their molecule's rank as
+    ``_rank``."""
     n = rf.n_rows
     for start in range(0, n, rows):
         stop = min(start + rows, n)
         count = rf.column("state_count", start, stop).astype(np.int64)
         first = rf.column("state_start", start, stop).astype(np.int64)
         has = count > 0
+        if rank is not None and not (has & (rank[start:stop] >= 0)).any():
+            continue
         if not has.any():
             continue
         s0 = int(first[has][0])
@@ -143,7 +224,7 @@ def _state_slices(rf: ResultsFile, rows: int):
         root = st["root"].astype(np.int64)
         hm, lp = st["dominant_homo_minus"].astype(np.int64), st["dominant_lumo_plus"].astype(np.int64)
         dip = st["transition_dipole"]
-        yield {
+        part = {
             "key": [keys[i] for i in owner], "name": [names[i] for i in owner],
             "chromophore": chrom + 1,
             "state": [(f"c{c + 1}:" if m else "") + ("S" if k == 1 else "T") + str(r)
@@ -156,6 +237,13 @@ def _state_slices(rf: ResultsFile, rows: int):
                          for a, b in zip(hm.tolist(), lp.tolist())],
             "dominant_homo_minus": hm, "dominant_lumo_plus": lp, "dominant_weight": st["dominant_weight"],
         }
+        if rank is not None:
+            r = rank[start:stop][owner]
+            sel = np.flatnonzero(r >= 0)
+            part = {k: (v[sel] if isinstance(v, np.ndarray) else [v[i] for i in sel.tolist()])
+                    for k, v in part.items()}
+            part["_rank"] = r[sel]
+        yield part
 
 
 def _cell(v) -> str:
@@ -166,13 +254,15 @@ def _cell(v) -> str:
 
 def export(path: str | Path, out: str | Path, fmt: str | None = None, status: str = "all",
            overwrite: bool = False, rows: int = 65536, table: str = "molecules",
-           colour: ColourSample | None = None) -> int:
+           colour: ColourSample | None = None, select: Selection | None = None) -> int:
     """Write the molecules table of ``path`` to ``out`` (CSV, or Parquet when ``fmt`` or the suffix says
     so), or with ``table="states"`` its states, one row per state (:data:`STATE_EXPORT`; only molecules
     that were computed have states, so ``status`` must stay "all" or "ok"). Returns the number of rows
     written. NaN (no such state, an undefined polarization) becomes an empty CSV cell / a null.
     ``colour``: add :data:`COLOUR_COLUMNS` to the molecules table (0.1 s once, then about 0.2 ms per
-    molecule)."""
+    molecule). ``select``: only some molecules, ranked (:class:`Selection`; with ``table="states"`` the
+    states of those molecules, molecule by molecule in that order). A ranked export holds its rows in
+    memory until written: use ``top`` for a large file."""
     out = Path(out)
     if status not in STATUS_FILTERS:
         raise InputError(f"status filter must be one of {', '.join(STATUS_FILTERS)}, got '{status}'")
@@ -185,8 +275,12 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
     columns = STATE_EXPORT if table == "states" else COLUMNS + (COLOUR_COLUMNS if colour is not None else ())
     text_cols = _STATE_TEXT if table == "states" else _TEXT | {"status", "colour_hex"}
 
+    select = select if select is not None and select.active else None
+
     def slices(rf):
-        return _state_slices(rf, rows) if table == "states" else _slices(rf, status, rows, colour)
+        rank = _ranks(rf, "ok" if table == "states" else status, select) if select is not None else None
+        parts = _state_slices(rf, rows, rank) if table == "states" else _slices(rf, status, rows, colour, rank)
+        return _in_rank_order(list(parts)) if select is not None and select.by is not None else parts
 
     fmt = fmt or ("parquet" if out.suffix.lower() in (".parquet", ".pq") else "csv")
     if fmt not in ("csv", "parquet"):
@@ -207,8 +301,8 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
             writer = None
             try:
                 for part in slices(rf):
-                    chunk = pa.table({k: (pa.array(v, from_pandas=True) if not isinstance(v, list)
-                                          else pa.array(v, pa.string())) for k, v in part.items()})
+                    chunk = pa.table({k: (pa.array(part[k], from_pandas=True) if not isinstance(part[k], list)
+                                          else pa.array(part[k], pa.string())) for k in columns})
                     if writer is None:
                         writer = pq.ParquetWriter(tmp, chunk.schema)
                     writer.write_table(chunk)

@@ -20,6 +20,14 @@ def add_arguments(p) -> None:
     p.add_argument("--states", action="store_true",
                    help="one row per computed state (energy, wavelength, f, transition dipole, polarization, "
                         "dominant configuration) instead of one per molecule")
+    g = p.add_argument_group("ranking (the molecules a screen keeps)")
+    g.add_argument("--by", metavar="COLUMN",
+                   help="rank the molecules by a numeric column, largest first (e.g. bright_f, s1_nm; "
+                        "molecules without a value are left out)")
+    g.add_argument("--ascending", action="store_true", help="with --by: smallest first")
+    g.add_argument("--top", type=int, metavar="N", help="keep only the first N molecules (of the ranking)")
+    g.add_argument("--band-nm", nargs=2, type=float, metavar=("LO", "HI"),
+                   help="keep only molecules whose brightest band lies between LO and HI nm")
     p.add_argument("--format", choices=("csv", "parquet"), help="output format (default: from the file name)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     add_band_arguments(p)
@@ -27,13 +35,18 @@ def add_arguments(p) -> None:
 
 
 def main(args) -> int:
-    from ..batch.export import ColourSample, export
+    from ..batch.export import ColourSample, Selection, export
+    from ..errors import InputError
     table = "states" if args.states else "molecules"
+    if args.ascending and not args.by:
+        raise InputError("--ascending orders a ranking: give --by COLUMN too")
+    select = Selection(by=args.by, top=args.top, ascending=args.ascending,
+                       band_nm=tuple(args.band_nm) if args.band_nm else None)
     colour = None
     if args.colour:
         shape, prog = band_from_args(args)
         colour = ColourSample(shape, prog, args.concentration, args.path_length)
     n = export(args.results, args.output, fmt=args.format, status=args.status, overwrite=args.overwrite,
-               table=table, colour=colour)
+               table=table, colour=colour, select=select)
     print(f"wrote {n} {'state' if args.states else 'molecule'}(s) to {args.output}")
     return 0
