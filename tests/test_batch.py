@@ -335,6 +335,9 @@ def test_export_ranking_selects_and_orders_like_sorting_the_full_table(library, 
     assert n == int(np.sum((nm >= lo) & (nm <= hi))) > 0
     code, _, err = cli("export", ref, "-o", tmp_path / "x.csv", "--by", "colour")
     assert code == 1 and "cannot rank by 'colour'" in err and "bright_f" in err
+    # '-o -': the same CSV on standard output, the count on standard error
+    code, text, err = cli("export", ref, "-o", "-", "--by", "bright_f", "--top", "5")
+    assert code == 0 and text.replace("\r\n", "\n") == out.read_text() and "5 molecule(s)" in err
 
 
 def test_export_colour_equals_the_spectrum_command(library, tmp_path, cli):

@@ -252,9 +252,22 @@ def _cell(v) -> str:
     return str(v)
 
 
+def _write_csv(fh, columns, parts) -> int:
+    """CSV header and rows of ``parts`` (only ``columns``, in that order); returns the rows written."""
+    w = csv.writer(fh)
+    w.writerow(columns)
+    n = 0
+    for part in parts:
+        cols = [part[c].tolist() if isinstance(part[c], np.ndarray) else part[c] for c in columns]
+        for row in zip(*cols):
+            w.writerow([_cell(v) for v in row])
+            n += 1
+    return n
+
+
 def export(path: str | Path, out: str | Path, fmt: str | None = None, status: str = "all",
            overwrite: bool = False, rows: int = 65536, table: str = "molecules",
-           colour: ColourSample | None = None, select: Selection | None = None) -> int:
+           colour: ColourSample | None = None, select: Selection | None = None, stream=None) -> int:
     """Write the molecules table of ``path`` to ``out`` (CSV, or Parquet when ``fmt`` or the suffix says
     so), or with ``table="states"`` its states, one row per state (:data:`STATE_EXPORT`; only molecules
     that were computed have states, so ``status`` must stay "all" or "ok"). Returns the number of rows
@@ -262,7 +275,9 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
     ``colour``: add :data:`COLOUR_COLUMNS` to the molecules table (0.1 s once, then about 0.2 ms per
     molecule). ``select``: only some molecules, ranked (:class:`Selection`; with ``table="states"`` the
     states of those molecules, molecule by molecule in that order). A ranked export holds its rows in
-    memory until written: use ``top`` for a large file."""
+    memory until written: use ``top`` for a large file. ``out`` "-": CSV to ``stream`` (default standard
+    output), e.g. to look at the top hits in a terminal."""
+    to_stream = str(out) == "-"
     out = Path(out)
     if status not in STATUS_FILTERS:
         raise InputError(f"status filter must be one of {', '.join(STATUS_FILTERS)}, got '{status}'")
@@ -285,6 +300,12 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
     fmt = fmt or ("parquet" if out.suffix.lower() in (".parquet", ".pq") else "csv")
     if fmt not in ("csv", "parquet"):
         raise InputError(f"export format must be csv or parquet, got '{fmt}'")
+    if to_stream:
+        if fmt != "csv":
+            raise InputError("only CSV goes to standard output ('-o -'); give Parquet a file name")
+        import sys
+        with ResultsFile(path) as rf:
+            return _write_csv(stream if stream is not None else sys.stdout, columns, slices(rf))
     if out.exists() and out.resolve() == Path(path).resolve():
         raise StorageError(f"the export '{out}' would replace the results file itself; choose another name")
     if out.exists() and not overwrite:
@@ -315,12 +336,6 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
                     writer.close()
         else:
             with open(tmp, "w", newline="", encoding="utf-8") as fh:
-                w = csv.writer(fh)
-                w.writerow(columns)
-                for part in slices(rf):
-                    cols = [part[c].tolist() if isinstance(part[c], np.ndarray) else part[c] for c in columns]
-                    for row in zip(*cols):
-                        w.writerow([_cell(v) for v in row])
-                        n += 1
+                n = _write_csv(fh, columns, slices(rf))
     tmp.replace(out)
     return n

@@ -12,7 +12,8 @@ HELP = ("write the molecules table of a batch results file (S1, T1, brightest ba
 def add_arguments(p) -> None:
     p.add_argument("results", metavar="RESULTS.h5", help="batch results file")
     p.add_argument("-o", "--output", required=True, metavar="FILE",
-                   help="output file; .parquet writes Parquet (needs pyarrow), anything else CSV")
+                   help="output file; .parquet writes Parquet (needs pyarrow), anything else CSV; "
+                        "'-': CSV to the terminal (standard output)")
     p.add_argument("--status", choices=("all", "ok", "failed"), default="all", help="which molecules (all)")
     p.add_argument("--colour", action="store_true",
                    help="add the predicted colour of each molecule's solution (sRGB hex, CIE L*a*b*) from its "
@@ -48,5 +49,8 @@ def main(args) -> int:
         colour = ColourSample(shape, prog, args.concentration, args.path_length)
     n = export(args.results, args.output, fmt=args.format, status=args.status, overwrite=args.overwrite,
                table=table, colour=colour, select=select)
-    print(f"wrote {n} {'state' if args.states else 'molecule'}(s) to {args.output}")
+    import sys
+    print(f"wrote {n} {'state' if args.states else 'molecule'}(s) to "
+          f"{'standard output' if args.output == '-' else args.output}",
+          file=sys.stderr if args.output == "-" else sys.stdout)
     return 0
