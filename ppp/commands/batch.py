@@ -83,6 +83,10 @@ def main(args) -> int:
     cfg = config_from(args, Path(args.input), Path(args.output))
     summary = run_batch(cfg)
     print("\n".join(summary.lines()))
+    if summary.complete:
+        out = args.output
+        print(f"next: ppp export {out} -o {Path(out).with_suffix('.csv').name} (the table; --by bright_f --top 100 "
+              f"--band-nm 450 650 for ranked hits, --colour for colours); ppp spectrum --record {out} --molecule ID")
     if summary.interrupted:
         return 130
     return 0
