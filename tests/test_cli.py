@@ -147,6 +147,20 @@ def test_bad_files(cli, tmp_path, content, expect):
     assert code == 1 and expect in one_error_line(err)
 
 
+def test_run_reads_smiles_lists_and_tables_as_batch_does(cli, tmp_path):
+    # a SMILES list or a CSV given to --file is read like a batch input (it used to be taken for an SDF
+    # file and every line reported as a truncated record); a bad line is its own one-line error
+    smi = tmp_path / "few.smi"
+    smi.write_text("C=CC=C butadiene\nC1CC( broken\n")
+    code, out, err = cli("run", "--file", smi, "--singlets", "2", "--triplets", "0")
+    assert code == 1 and "butadiene" in out and "S1" in out
+    assert one_error_line(err).startswith("error: broken:") and "unparsable SMILES" in err
+    table = tmp_path / "few.csv"
+    table.write_text("name;smiles\nhexatriene;C=CC=CC=C\n")
+    code, out, _ = cli("run", "--file", table, "--singlets", "1", "--triplets", "0", "--json")
+    assert code == 0 and json.loads(out)["results"][0]["name"] == "hexatriene"
+
+
 def test_save_refuses_to_overwrite(cli, tmp_path):
     out = tmp_path / "r.h5"
     assert cli("run", "C=C", "--save", out)[0] == 0

@@ -1,4 +1,4 @@
-"""``ppp run``: compute a few molecules given on the command line or in a MOL/SDF file."""
+"""``ppp run``: compute a few molecules given on the command line or in a file (MOL/SDF, SMILES list, CSV)."""
 from __future__ import annotations
 
 import json
@@ -10,7 +10,7 @@ from pathlib import Path
 from .. import __version__
 from ..analysis.timings import StageTimer, maybe_stage
 from ..driver import compute
-from ..errors import PPPError, StorageError
+from ..errors import InputError, ParseError, PPPError, StorageError
 from ..io import h5_io
 from ..structure.readers import read_molfile
 from .common import add_model_arguments, options_from
@@ -20,12 +20,14 @@ NAME = "run"
 #: module was imported, which is after interpreter start-up but covers the package imports that follow.
 _START = time.perf_counter()
 
-HELP = "excited states of molecules given as SMILES or in a MOL/SDF file"
+HELP = "excited states of molecules given as SMILES or in a file (MOL/SDF, SMILES list, CSV)"
 
 
 def add_arguments(p) -> None:
     p.add_argument("smiles", nargs="*", metavar="SMILES", help="one or more SMILES strings")
-    p.add_argument("--file", "-f", metavar="MOLFILE", help="MOL or SDF file (every record is computed)")
+    p.add_argument("--file", "-f", metavar="FILE",
+                   help="MOL or SDF file, or a SMILES list or CSV table as for ppp batch (every record is "
+                        "computed)")
     p.add_argument("--json", action="store_true", help="print JSON (schema: ppp/io/result.schema.json)")
     p.add_argument("--save", metavar="FILE.h5", help="write the full record (model, orbitals, CI vectors) to HDF5")
     p.add_argument("--overwrite", action="store_true", help="allow --save to replace an existing file")
@@ -43,6 +45,23 @@ def main(args) -> int:
             print("\ntimings (wall clock):\n" + timer.report(wall=time.perf_counter() - _START), file=sys.stderr)
 
 
+def _file_jobs(path: str) -> list[tuple[str, object]]:
+    """(label, SMILES, molecule or error) of every record of ``path``: a MOL/SDF file, or a SMILES list
+    or CSV table read as ``ppp batch`` reads them (told apart by the file name, as there)."""
+    from ..batch.inputs import detect_format, read_items
+    try:
+        fmt = detect_format(path)
+    except InputError:
+        fmt = "sdf"  # no telling suffix: a MOL/SDF file, as this option has always read
+    if fmt == "sdf":
+        return [(rec.label, rec.mol if rec.mol is not None else rec.error) for rec in read_molfile(path)]
+    jobs = []
+    for item in read_items(path, fmt):
+        label = item.name or item.payload or f"{Path(path).name} {item.where}"
+        jobs.append((label, ParseError(f"{item.where}: {item.problem}") if item.problem else item.payload))
+    return jobs
+
+
 def _main(args, timer) -> int:
     options = options_from(args)
     if args.save and args.file and Path(args.save).exists() \
@@ -52,8 +71,7 @@ def _main(args, timer) -> int:
         raise StorageError(f"'{args.save}' exists; add --overwrite to replace it")
     jobs = [(s, s) for s in args.smiles]
     if args.file:
-        for rec in read_molfile(args.file):
-            jobs.append((rec.label, rec.mol if rec.mol is not None else rec.error))
+        jobs += _file_jobs(args.file)
     if not jobs:
         raise PPPError("nothing to compute: give SMILES strings or --file")
     results, errors = [], []
