@@ -161,6 +161,21 @@ def test_run_reads_smiles_lists_and_tables_as_batch_does(cli, tmp_path):
     assert code == 0 and json.loads(out)["results"][0]["name"] == "hexatriene"
 
 
+def test_run_reads_a_gzip_sdf_and_refuses_a_cut_one(cli, tmp_path):
+    import gzip
+    mol = Chem.MolFromSmiles("C=CC=CC=C")
+    mol.SetProp("_Name", "hexatriene")
+    AllChem.Compute2DCoords(mol)
+    block = Chem.MolToMolBlock(mol) + "$$$$\n"
+    gz = tmp_path / "one.sdf.gz"
+    gz.write_bytes(gzip.compress(block.encode()))
+    code, out, _ = cli("run", "--file", gz, "--singlets", "1", "--triplets", "0")
+    assert code == 0 and "hexatriene" in out
+    gz.write_bytes(gzip.compress(block.encode())[:40])
+    code, _, err = cli("run", "--file", gz)
+    assert code == 1 and "damaged gzip" in one_error_line(err)
+
+
 def test_save_refuses_to_overwrite(cli, tmp_path):
     out = tmp_path / "r.h5"
     assert cli("run", "C=C", "--save", out)[0] == 0

@@ -62,6 +62,13 @@ def read_molfile(path: str | Path) -> list[Record]:
         raw = p.read_bytes()
     except OSError as exc:
         raise ParseError(f"cannot read '{p}': {exc.strerror}") from None
+    if raw[:2] == b"\x1f\x8b":  # gzip-compressed (.sdf.gz), recognised by content as batch input is
+        import gzip
+        import zlib
+        try:
+            raw = gzip.decompress(raw)
+        except (OSError, EOFError, zlib.error) as exc:
+            raise ParseError(f"'{p}' is a damaged gzip file: {exc}") from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
