@@ -340,6 +340,36 @@ def test_export_ranking_selects_and_orders_like_sorting_the_full_table(library, 
     assert code == 0 and text.replace("\r\n", "\n") == out.read_text() and "5 molecule(s)" in err
 
 
+def test_export_uncertainty_is_the_one_a_run_shows(library, tmp_path):
+    # the class and class error of each molecule equal those 'ppp run' attaches to the same molecule
+    # (ppp.calibration.uncertainty.for_result), taken from the parameter set kept in the results file
+    from ppp.calibration.uncertainty import for_result
+    inp, ref = library
+    out = tmp_path / "u.csv"
+    export(ref, out, uncertainty=True)
+    with open(out, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    ok = [r for r in rows if r["status"] == "ok"]
+    assert all(r["class"] == "" and r["class_error_ev"] == "" for r in rows if r["status"] == "failed")
+    for r in ok[:4]:
+        u = for_result(ppp.compute(r["smiles"]))
+        assert r["class"] == u.cls or u.cls == "all"
+        assert float(r["class_error_ev"]) == pytest.approx(u.sigma_ev, abs=1e-12)
+        nm = float(r["bright_nm"])
+        assert float(r["bright_uncertainty_nm"]) == pytest.approx(nm * u.sigma_ev / float(r["bright_ev"]),
+                                                                   rel=1e-12)
+    # a solvent run gets no gas-phase figure (the class errors were measured in the gas phase)
+    solv = tmp_path / "solv.h5"
+    lines = inp.read_text().splitlines()
+    sub = tmp_path / "sub.smi"
+    sub.write_text("\n".join(lines[:4]) + "\n")
+    run(sub, solv, jobs=1, options=ppp.Options(solvent="ethanol"))
+    export(solv, tmp_path / "s.csv", uncertainty=True, status="ok")
+    with open(tmp_path / "s.csv", newline="") as fh:
+        srows = list(csv.DictReader(fh))
+    assert srows and all(r["class"] and r["class_error_ev"] == "" for r in srows)
+
+
 def test_export_colour_equals_the_spectrum_command(library, tmp_path, cli):
     # the colour column of a molecule is the colour 'ppp spectrum' gives for the same stored states
     import json

@@ -27,6 +27,10 @@ COLUMNS = ("key", "name", "input_index", "source", "status", "error_kind", "erro
 #: columns added by ``colour``: the predicted colour of the molecule's solution (sRGB hex of the
 #: transmitted D65 light, CIE L*a*b*), from its stored singlets broadened as ``ppp spectrum`` does
 COLOUR_COLUMNS = ("colour_hex", "colour_L_star", "colour_a_star", "colour_b_star")
+#: columns added by ``uncertainty``: the molecule's structure class (ppp.calibration.classes), the measured
+#: error of band positions for that class (or overall) from the parameter set's [uncertainty] table, and
+#: that error in nm at the brightest band — the "±" ``ppp run`` shows beside a band
+UNCERTAINTY_COLUMNS = ("class", "class_error_ev", "bright_uncertainty_nm")
 STATUS_FILTERS = ("all", "ok", "failed")
 TABLES = ("molecules", "states")
 #: columns of the states export: the molecule's key and name, then the stored state columns
@@ -162,11 +166,59 @@ def _colours(rf: ResultsFile, start: int, stop: int, rows: np.ndarray, sample: C
     return out
 
 
+def _uncertainty_source(rf: ResultsFile):
+    """(parameter set, singlet method) whose class errors apply to the file's results, or None when the
+    set carries none for them (a solvent run with a gas-phase table, or the reverse:
+    ppp.calibration.uncertainty)."""
+    from dataclasses import fields
+
+    from ..calibration.uncertainty import measured_with
+    from ..driver import Options
+    pset = rf.parameter_set()
+    known = {f.name for f in fields(Options)}
+    opts = Options(**{k: v for k, v in rf.options.items() if k in known})
+    if opts.in_solvent != (measured_with(pset) == "reference"):
+        return None
+    return pset, opts.response
+
+
+def _uncertainties(rf: ResultsFile, start: int, stop: int, rows: np.ndarray, source) -> dict:
+    """UNCERTAINTY_COLUMNS of molecules ``start + rows`` ("" / NaN for a failed one, NaN where the set
+    has no figure)."""
+    from ..calibration.classes import classify_smiles
+    from ..calibration.uncertainty import band_uncertainty
+    from ..errors import PPPError
+    st = rf.column("status", start, stop)
+    bright = rf.column("bright_ev", start, stop)
+    smiles = rf.text("canonical_smiles", start, stop)
+    out = {"class": [], "class_error_ev": np.full(len(rows), np.nan),
+           "bright_uncertainty_nm": np.full(len(rows), np.nan)}
+    for j, r in enumerate(rows.tolist()):
+        if st[r] != S.OK:
+            out["class"].append("")
+            continue
+        try:
+            cls = classify_smiles(smiles[r])
+        except PPPError:
+            cls = "other"
+        out["class"].append(cls)
+        if source is None:
+            continue
+        unit = band_uncertainty(1.0, cls, *source)  # the figure itself (eV), whatever the band
+        if unit is None:
+            continue
+        out["class_error_ev"][j] = unit.sigma_ev
+        if np.isfinite(bright[r]) and bright[r] > 0:
+            out["bright_uncertainty_nm"][j] = band_uncertainty(float(bright[r]), cls, *source).sigma_nm
+    return out
+
+
 def _slices(rf: ResultsFile, status: str, rows: int, colour: ColourSample | None = None,
-            rank: np.ndarray | None = None):
+            rank: np.ndarray | None = None, uncertainty: bool = False):
     """Molecules table rows, slice by slice; with ``rank`` (:func:`_ranks`) only the molecules it keeps,
     each part carrying their ranks as ``_rank``."""
     n = rf.n_rows
+    source = _uncertainty_source(rf) if uncertainty else None
     for start in range(0, n, rows):
         stop = min(start + rows, n)
         st = rf.column("status", start, stop)
@@ -187,6 +239,8 @@ def _slices(rf: ResultsFile, status: str, rows: int, colour: ColourSample | None
                 out[name] = rf.column(name, start, stop)[keep]
         if colour is not None:
             out.update(_colours(rf, start, stop, np.flatnonzero(keep), colour))
+        if uncertainty:
+            out.update(_uncertainties(rf, start, stop, np.flatnonzero(keep), source))
         if rank is not None:
             out["_rank"] = rank[start:stop][keep]
         yield out
@@ -267,7 +321,8 @@ def _write_csv(fh, columns, parts) -> int:
 
 def export(path: str | Path, out: str | Path, fmt: str | None = None, status: str = "all",
            overwrite: bool = False, rows: int = 65536, table: str = "molecules",
-           colour: ColourSample | None = None, select: Selection | None = None, stream=None) -> int:
+           colour: ColourSample | None = None, select: Selection | None = None, stream=None,
+           uncertainty: bool = False) -> int:
     """Write the molecules table of ``path`` to ``out`` (CSV, or Parquet when ``fmt`` or the suffix says
     so), or with ``table="states"`` its states, one row per state (:data:`STATE_EXPORT`; only molecules
     that were computed have states, so ``status`` must stay "all" or "ok"). Returns the number of rows
@@ -276,7 +331,9 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
     molecule). ``select``: only some molecules, ranked (:class:`Selection`; with ``table="states"`` the
     states of those molecules, molecule by molecule in that order). A ranked export holds its rows in
     memory until written: use ``top`` for a large file. ``out`` "-": CSV to ``stream`` (default standard
-    output), e.g. to look at the top hits in a terminal."""
+    output), e.g. to look at the top hits in a terminal. ``uncertainty``: add :data:`UNCERTAINTY_COLUMNS`
+    (the class errors of the parameter set the file was computed with, as kept in the file; about 0.3 ms
+    per molecule for its class)."""
     to_stream = str(out) == "-"
     out = Path(out)
     if status not in STATUS_FILTERS:
@@ -285,16 +342,18 @@ def export(path: str | Path, out: str | Path, fmt: str | None = None, status: st
         raise InputError(f"table must be one of {', '.join(TABLES)}, got '{table}'")
     if table == "states" and status == "failed":
         raise InputError("failed molecules have no states; export the molecules table to see why they failed")
-    if colour is not None and table == "states":
-        raise InputError("the colour belongs to a molecule: export the molecules table to get it")
-    columns = STATE_EXPORT if table == "states" else COLUMNS + (COLOUR_COLUMNS if colour is not None else ())
-    text_cols = _STATE_TEXT if table == "states" else _TEXT | {"status", "colour_hex"}
+    if (colour is not None or uncertainty) and table == "states":
+        raise InputError("colour and uncertainty belong to a molecule: export the molecules table to get them")
+    columns = STATE_EXPORT if table == "states" else (COLUMNS + (COLOUR_COLUMNS if colour is not None else ())
+                                                      + (UNCERTAINTY_COLUMNS if uncertainty else ()))
+    text_cols = _STATE_TEXT if table == "states" else _TEXT | {"status", "colour_hex", "class"}
 
     select = select if select is not None and select.active else None
 
     def slices(rf):
         rank = _ranks(rf, "ok" if table == "states" else status, select) if select is not None else None
-        parts = _state_slices(rf, rows, rank) if table == "states" else _slices(rf, status, rows, colour, rank)
+        parts = (_state_slices(rf, rows, rank) if table == "states"
+                 else _slices(rf, status, rows, colour, rank, uncertainty))
         return _in_rank_order(list(parts)) if select is not None and select.by is not None else parts
 
     fmt = fmt or ("parquet" if out.suffix.lower() in (".parquet", ".pq") else "csv")

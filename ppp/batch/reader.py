@@ -130,6 +130,16 @@ class ResultsFile:
     def options(self) -> dict:
         return json.loads(self.attrs["options"])
 
+    def parameter_set(self):
+        """The parameter set the file was computed with, from the copy of its file the results file keeps
+        (:class:`ppp.model.params.ParameterSet`; the same hash as the file it was read from)."""
+        from ..model import params
+        try:
+            raw = self.h5["parameter_file"][()].tobytes()
+        except _READ_ERRORS as exc:
+            raise _damaged(self.path, f"parameter_file: {_first_line(str(exc))}") from None
+        return params.from_bytes(raw, f"{self.path.name}:parameter_file")
+
     def block_rows(self) -> list[int]:
         """Molecule count after each committed block."""
         if self.committed["__blocks__"] < 0:  # no usable commit log (salvage): whole chunks

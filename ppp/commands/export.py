@@ -18,6 +18,9 @@ def add_arguments(p) -> None:
     p.add_argument("--colour", action="store_true",
                    help="add the predicted colour of each molecule's solution (sRGB hex, CIE L*a*b*) from its "
                         "broadened singlets; band shape and sample as for 'ppp spectrum'")
+    p.add_argument("--uncertainty", action="store_true",
+                   help="add each molecule's structure class, the measured error of its class (eV) and that "
+                        "error in nm at the brightest band: the '±' of 'ppp run'")
     p.add_argument("--states", action="store_true",
                    help="one row per computed state (energy, wavelength, f, transition dipole, polarization, "
                         "dominant configuration) instead of one per molecule")
@@ -48,7 +51,7 @@ def main(args) -> int:
         shape, prog = band_from_args(args)
         colour = ColourSample(shape, prog, args.concentration, args.path_length)
     n = export(args.results, args.output, fmt=args.format, status=args.status, overwrite=args.overwrite,
-               table=table, colour=colour, select=select)
+               table=table, colour=colour, select=select, uncertainty=args.uncertainty)
     import sys
     print(f"wrote {n} {'state' if args.states else 'molecule'}(s) to "
           f"{'standard output' if args.output == '-' else args.output}",

@@ -132,6 +132,17 @@ def _load_path(path: str) -> ParameterSet:
         raw = Path(path).read_bytes()
     except OSError as exc:
         raise ParameterError(f"cannot read parameter file '{path}': {exc.strerror}") from None
+    return _parse(raw, path)
+
+
+def from_bytes(raw: bytes, origin: str) -> ParameterSet:
+    """A parameter set from the bytes of its file, e.g. the copy a batch results file keeps (``origin``
+    names where they came from, in messages and as ``path``); validated as :func:`load` validates a file,
+    with the same hash."""
+    return _parse(bytes(raw), origin)
+
+
+def _parse(raw: bytes, path: str) -> ParameterSet:
     try:
         text = raw.decode("utf-8")
         data = tomllib.loads(text)
