@@ -38,9 +38,10 @@ def main(args) -> int:
     print("\n".join(summary.lines()))
     if not summary.complete:
         return 130 if summary.interrupted else 1
-    n = export(out, csv_path, overwrite=True, colour=ColourSample())
+    n = export(out, csv_path, overwrite=True, colour=ColourSample(), uncertainty=True)
     print(f"wrote {n} rows to {csv_path} (open it in a spreadsheet; failed rows carry their reason; "
-          f"colour_*: predicted colour of a 5e-5 M solution, 1 cm)")
+          f"colour_*: predicted colour of a 5e-5 M solution, 1 cm; class_error_ev: the measured error of "
+          f"the molecule's class)")
     with ResultsFile(out) as rf:
         names = rf.text("name")
         nm, f = rf.column("bright_nm"), rf.column("bright_f")
