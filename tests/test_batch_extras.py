@@ -59,6 +59,8 @@ def test_demo_command_writes_results_and_csv_and_refuses_to_overwrite(tmp_path, 
     assert {"parse", "radical", "unsupported_element", "no_pi_system"} <= kinds
     csv_lines = (tmp_path / "demo.csv").read_text().splitlines()
     assert len(csv_lines) == rf.n_rows + 1 and csv_lines[0].startswith("key,name,")
+    assert csv_lines[0].endswith(",colour_hex,colour_L_star,colour_a_star,colour_b_star,class,class_error_ev,"
+                                 "bright_uncertainty_nm")
     code, _, err = cli("demo", "-o", out)
     assert code == 1 and "exists" in err and "--overwrite" in err
 
