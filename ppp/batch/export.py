@@ -176,7 +176,10 @@ def _uncertainty_source(rf: ResultsFile):
     from ..driver import Options
     pset = rf.parameter_set()
     known = {f.name for f in fields(Options)}
-    opts = Options(**{k: v for k, v in rf.options.items() if k in known})
+    try:
+        opts = Options(**{k: v for k, v in rf.options.items() if k in known})
+    except InputError:  # options this ppp no longer accepts: it cannot tell which figures apply
+        return None
     if opts.in_solvent != (measured_with(pset) == "reference"):
         return None
     return pset, opts.response
