@@ -1,7 +1,10 @@
 """Export the molecules table of a results file (with S1, T1 and the brightest band), or its states table
-(every computed state of every molecule, one row each), to CSV or Parquet.
+(every computed state of every molecule, one row each), to CSV or Parquet; optionally with each
+molecule's predicted solution colour (:class:`ColourSample`) and class error (the "±"), and only the
+molecules a screen keeps, ranked (:class:`Selection`).
 
-Rows are streamed in slices, so a file of a million molecules never sits in memory whole.
+Rows are streamed in slices, so a file of a million molecules never sits in memory whole (a ranking
+collects the rows it keeps: use its ``top``).
 """
 from __future__ import annotations
 
