@@ -61,6 +61,28 @@ def test_jcamp_transmittance_becomes_absorbance(tmp_path):
     assert spec.values[::-1] == pytest.approx(-np.log10(t), rel=1e-12)
 
 
+def test_transmittance_in_percent_or_as_a_fraction_becomes_absorbance(tmp_path):
+    # A = -log10 T (Beer-Lambert) whichever way an instrument writes T: %T / T (%) in percent, a bare
+    # "transmittance" as a fraction; in CSV and in JCAMP-DX alike
+    wl, a = known_curve()
+    t = 10.0 ** (-a)
+    for header, scale in (("wavelength (nm),%T", 100.0), ("nm;T (%)", 100.0),
+                          ("wavelength (nm),transmittance", 1.0)):
+        p = tmp_path / "t.csv"
+        sep = ";" if ";" in header else ","
+        p.write_text(header + "\n" + "".join(f"{float(u)!r}{sep}{float(v * scale)!r}\n" for u, v in zip(wl, t)))
+        spec = read_csv(p)
+        assert spec.quantity == "absorbance" and spec.values[::-1] == pytest.approx(a, rel=1e-10), header
+    tp = np.round(100.0 * t, 3)
+    spec = read_jcamp(write_affn(tmp_path / "p.jdx", wl, tp, yunits="%T", yfactor=1e-3))
+    assert spec.values[::-1] == pytest.approx(-np.log10(tp / 100.0), rel=1e-12)
+    # percent values under a fraction's name are refused with the way out
+    p.write_text("wavelength (nm),transmittance\n" + "".join(f"{float(u)!r},{float(v * 100)!r}\n"
+                                                             for u, v in zip(wl, t)))
+    with pytest.raises(MeasuredSpectrumError, match="%T"):
+        read_csv(p)
+
+
 def test_shipped_demo_files_agree():
     import ppp
     from pathlib import Path

@@ -9,7 +9,7 @@ of these appear in the header, white space. The header names each column as
 naming an axis quantity and the first naming an intensity quantity are used; other columns are ignored.
 
     axis:       wavelength (nm) | wavenumber (cm-1) | energy (eV)
-    intensity:  absorbance | epsilon (M-1 cm-1) | log epsilon
+    intensity:  absorbance | epsilon (M-1 cm-1) | log epsilon | transmittance (a fraction) | %T
 
 JCAMP-DX (McDonald & Wilks 1988, Appl. Spectrosc. 42, 151): one spectrum per file, ##XUNITS=
 NANOMETERS, 1/CM or EV (MICROMETERS also accepted), ##YUNITS= ABSORBANCE, TRANSMITTANCE, MOLAR
@@ -97,6 +97,8 @@ _EPS_NAMES = {"epsilon", "\u03b5", "eps", "molarabsorptivity", "molarabsorptionc
               "molarextinctioncoefficient", "extinctioncoefficient"}
 _LOG_EPS_NAMES = {"log" + n for n in _EPS_NAMES} | {"log10" + n for n in _EPS_NAMES} | {"lg" + n for n in _EPS_NAMES}
 _ABS_NAMES = {"absorbance", "a", "abs", "opticaldensity", "od"}
+#: transmittance in percent, as instruments label it; "transmittance" alone is a fraction
+_T_PERCENT_NAMES = {"%t", "t%", "%transmittance", "transmittance%", "percenttransmittance"}
 
 
 def _split_header_token(token: str) -> tuple[str, str]:
@@ -142,6 +144,10 @@ def _axis_kind(name: str, unit: str) -> str | None:
 def _intensity_kind(name: str, unit: str) -> str | None:
     if name in _ABS_NAMES:
         return "absorbance"
+    if name in _T_PERCENT_NAMES or (name in ("t", "transmittance") and unit.strip() == "%"):
+        return "transmittance_percent"
+    if name == "transmittance":
+        return "transmittance"
     if name in _LOG_EPS_NAMES:
         return "log_epsilon"
     if name in _EPS_NAMES:
@@ -168,7 +174,8 @@ def make_spectrum(x: np.ndarray, y: np.ndarray, axis_unit: str, intensity: str, 
     """Validate raw columns and build a :class:`MeasuredSpectrum` on an ascending energy axis.
 
     Checks: at least ``MIN_POINTS`` points, finite numbers, strictly monotonic axis (either direction,
-    no repeated value), positive axis values; log epsilon is turned into epsilon.
+    no repeated value), positive axis values; log epsilon is turned into epsilon, a transmittance (a
+    fraction, or in percent) into absorbance.
     """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
@@ -189,6 +196,14 @@ def make_spectrum(x: np.ndarray, y: np.ndarray, axis_unit: str, intensity: str, 
     if intensity == "log_epsilon":
         y = 10.0 ** y
         intensity = "epsilon"
+    elif intensity in ("transmittance", "transmittance_percent"):
+        full = 100.0 if intensity == "transmittance_percent" else 1.0
+        if np.any(y <= 0) or np.max(y) > 1.5 * full:
+            raise MeasuredSpectrumError(
+                f"{source}: transmittance must lie in (0, {full:g}]" + ("" if full > 1 else
+                                                                     "; for percent name it %T or T (%)"))
+        y = -np.log10(y / full)  # absorbance A = -log10 T (Beer-Lambert)
+        intensity = "absorbance"
     order = np.argsort(energy)
     return MeasuredSpectrum(energy[order], y[order], intensity, axis_unit, source, title)
 
@@ -266,7 +281,7 @@ def read_csv(path: str | Path) -> MeasuredSpectrum:
                 f"{src}: first line is numbers, not a header; name the columns, e.g. 'wavelength (nm),absorbance'")
         raise MeasuredSpectrumError(
             f"{src}: no header line naming an axis column (wavelength (nm), wavenumber (cm-1) or energy (eV)) "
-            f"and an intensity column (absorbance, epsilon (M-1 cm-1) or log epsilon) in its first "
+            f"and an intensity column (absorbance, epsilon (M-1 cm-1), log epsilon or %T) in its first "
             f"{HEADER_SEARCH_LINES} lines; first line: '{first[:40]}'")
     k, (sep, ix, axis_unit, iy, intensity) = found
     header_no = lines[k][0]
@@ -304,7 +319,8 @@ def read_csv(path: str | Path) -> MeasuredSpectrum:
 
 # --- JCAMP-DX -----------------------------------------------------------------------------------------
 
-_JDX_Y = {"absorbance": "absorbance", "transmittance": "transmittance",
+_JDX_Y = {"absorbance": "absorbance", "transmittance": "transmittance", "%t": "transmittance_percent",
+          "percenttransmittance": "transmittance_percent", "transmittance%": "transmittance_percent",
           "molarabsorptivity": "epsilon", "logmolarabsorptivity": "log_epsilon",
           "logepsilon": "log_epsilon", "epsilon": "epsilon"}
 
@@ -347,11 +363,6 @@ def read_jcamp(path: str | Path) -> MeasuredSpectrum:
             "or LOG(MOLAR ABSORPTIVITY)")
     x = np.asarray(d.get("x", []), dtype=float)
     y = np.asarray(d.get("y", []), dtype=float)
-    if ykind == "transmittance":
-        if len(y) and (np.any(y <= 0) or np.nanmax(y) > 1.5):
-            raise MeasuredSpectrumError(f"{src}: transmittance must be a fraction in (0, 1]")
-        y = -np.log10(y)  # absorbance A = -log10 T (Beer-Lambert)
-        ykind = "absorbance"
     return make_spectrum(x, y, xu, ykind, src, str(d.get("title", "")))
 
 
