@@ -188,13 +188,12 @@ def _uncertainty_source(rf: ResultsFile):
     return pset, opts.response
 
 
-def _uncertainties(rf: ResultsFile, start: int, stop: int, rows: np.ndarray, source) -> dict:
+def _uncertainties(rf: ResultsFile, start: int, stop: int, rows: np.ndarray, source, st: np.ndarray) -> dict:
     """UNCERTAINTY_COLUMNS of molecules ``start + rows`` ("" / NaN for a failed one, NaN where the set
-    has no figure)."""
+    has no figure); ``st``: the slice's status column, already read."""
     from ..calibration.classes import classify_smiles
     from ..calibration.uncertainty import band_uncertainty
     from ..errors import PPPError
-    st = rf.column("status", start, stop)
     bright = rf.column("bright_ev", start, stop)
     smiles = rf.text("canonical_smiles", start, stop)
     out = {"class": [], "class_error_ev": np.full(len(rows), np.nan),
@@ -246,7 +245,7 @@ def _slices(rf: ResultsFile, status: str, rows: int, colour: ColourSample | None
         if colour is not None:
             out.update(_colours(rf, start, stop, np.flatnonzero(keep), colour))
         if uncertainty:
-            out.update(_uncertainties(rf, start, stop, np.flatnonzero(keep), source))
+            out.update(_uncertainties(rf, start, stop, np.flatnonzero(keep), source, st))
         if rank is not None:
             out["_rank"] = rank[start:stop][keep]
         yield out

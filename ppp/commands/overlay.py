@@ -6,8 +6,6 @@ import csv
 import json
 import sys
 
-import numpy as np
-
 from ..spectra import lineshapes, output, perceived
 from ..units import EV_CM1, HC_EV_NM
 
@@ -36,18 +34,8 @@ def overlay_main(args, srcs, shape, prog, grid, window, notes) -> int:
     colours = [perceived.colour_of_solution(
         lambda wl, s=s: lineshapes.epsilon(HC_EV_NM / wl, s.sticks, shape, prog), args.concentration,
         args.path_length) for s in srcs]
-    order = np.arange(len(grid))[::-1] if args.axis == "wavelength" else np.arange(len(grid))
-    e = curves[0].energy_ev[order]
-    with open(files["curves"], "w", newline="", encoding="utf-8") as fh:
-        fh.write(f"# simulated absorption spectra of {len(srcs)} molecules: ppp\n")
-        for n in notes:
-            fh.write(f"# {n}\n")
-        w = csv.writer(fh)
-        w.writerow(["wavelength (nm)", "energy (eV)", "wavenumber (cm-1)"]
-                   + [f"epsilon of {n} (M-1 cm-1)" for n in names])
-        for k, ek in enumerate(e.tolist()):
-            w.writerow([f"{HC_EV_NM / ek:.4f}", f"{ek:.6f}", f"{ek * EV_CM1:.3f}"]
-                       + [f"{c.epsilon[order[k]]:.6g}" for c in curves])
+    output.write_curves_csv(files["curves"], curves, names, notes,
+                            ascending="wavelength" if args.axis == "wavelength" else "energy")
     with open(files["sticks"], "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh)
         w.writerow(["molecule", "state", "energy (eV)", "wavelength (nm)", "wavenumber (cm-1)",

@@ -42,14 +42,30 @@ def write_curve_csv(path, curve, name: str, notes=(), ascending: str = "waveleng
 
     Rows in ascending wavelength (``ascending="wavelength"``) or ascending energy otherwise.
     The file reads back with ``ppp.spectra.measured.read_csv``."""
-    order = np.arange(len(curve.energy_ev))[::-1] if ascending == "wavelength" else np.arange(len(curve.energy_ev))
-    e = curve.energy_ev[order]
-    table = np.column_stack([HC_EV_NM / e, e, e * EV_CM1, curve.epsilon[order]])
+    return write_curves_csv(path, [curve], [name], notes, ascending)
+
+
+def write_curves_csv(path, curves, names, notes=(), ascending: str = "wavelength") -> Path:
+    """Simulated curves of several molecules on one grid: the three axis columns, then one epsilon column
+    per molecule ("epsilon of NAME (M-1 cm-1)"; for one molecule the layout of :func:`write_curve_csv`)."""
+    import csv
+    import io
+
+    grid = curves[0].energy_ev
+    order = np.arange(len(grid))[::-1] if ascending == "wavelength" else np.arange(len(grid))
+    e = grid[order]
+    table = np.column_stack([HC_EV_NM / e, e, e * EV_CM1] + [c.epsilon[order] for c in curves])
+    one = len(curves) == 1
+    head = io.StringIO()
+    csv.writer(head, lineterminator="\n").writerow(
+        ["wavelength (nm)", "energy (eV)", "wavenumber (cm-1)"]
+        + (["epsilon (M-1 cm-1)"] if one else [f"epsilon of {n} (M-1 cm-1)" for n in names]))
     path = Path(path)
     with path.open("w", encoding="utf-8") as fh:
-        fh.write(_header("simulated absorption spectrum", name, notes))
-        fh.write("wavelength (nm),energy (eV),wavenumber (cm-1),epsilon (M-1 cm-1)\n")
-        np.savetxt(fh, table, delimiter=",", fmt=["%.4f", "%.6f", "%.3f", "%.6g"])
+        fh.write(_header("simulated absorption spectrum" if one else "simulated absorption spectra",
+                         names[0] if one else f"{len(curves)} molecules", notes))
+        fh.write(head.getvalue())
+        np.savetxt(fh, table, delimiter=",", fmt=["%.4f", "%.6f", "%.3f"] + ["%.6g"] * len(curves))
     return path
 
 
